@@ -1,0 +1,367 @@
+//! Text normalisation: the form of a text that features and audit digests see.
+//!
+//! [`normalize_into`] applies, in this order:
+//!
+//! 1. removal of invisible characters: every character of General_Category
+//!    `Cf` (format: zero-width space and joiners, soft hyphen, bidi controls,
+//!    tag characters, ...) and the other default-ignorable characters that
+//!    are not `Cf` (combining grapheme joiner, Hangul fillers, Khmer inherent
+//!    vowels, Mongolian and other variation selectors), see [`is_invisible`];
+//! 2. Unicode NFKC (UAX #15), so fullwidth letters, ligatures and other
+//!    compatibility forms become their plain letters;
+//! 3. lowercase, character by character (`char::to_lowercase`, so a final
+//!    capital sigma becomes `σ`, not `ς`);
+//! 4. runs of one character longer than `max_run` are cut to `max_run`
+//!    (`freeeeee` becomes `freee` at the default 3). Numeric characters are
+//!    exempt so that numbers keep their value and digit count.
+//!
+//! Invisible characters go first so that a zero-width space between a letter
+//! and its combining accent cannot keep NFKC from composing them. The result
+//! is the lowercase of an NFKC string, which is not always NFKC itself; it
+//! only has to be the same every time.
+//!
+//! Counts for the length and share features ([`TextStats`]) are taken after
+//! step 2 and before case folding, since the uppercase share needs the case.
+//!
+//! ASCII text skips steps 1 and 2 (ASCII holds no invisible characters and
+//! NFKC is the identity on it); most traffic takes this path. Other text is
+//! checked with the NFKC quick check first and only recomposed when needed.
+
+use unicode_normalization::{IsNormalized, UnicodeNormalization, is_nfkc_quick};
+use unicode_properties::{GeneralCategory, UnicodeGeneralCategory};
+
+/// Counts over one normalised text, taken before case folding and run
+/// collapse.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct TextStats {
+    /// Characters after invisible removal and NFKC.
+    pub chars: usize,
+    /// Uppercase letters (`char::is_uppercase`).
+    pub uppercase: usize,
+    /// Lowercase letters (`char::is_lowercase`).
+    pub lowercase: usize,
+    /// Decimal digits (General_Category `Nd`).
+    pub digits: usize,
+    /// Characters that are not whitespace.
+    pub non_space: usize,
+}
+
+/// True for characters removed before anything else looks at the text.
+///
+/// These are General_Category `Cf` and the default-ignorable characters of
+/// other categories, which render as nothing and are used to break up words
+/// (`fr\u{200B}ee`).
+pub fn is_invisible(c: char) -> bool {
+    if c.is_ascii() {
+        return false;
+    }
+    matches!(
+        c,
+        '\u{034F}'                    // combining grapheme joiner
+        | '\u{115F}' | '\u{1160}'     // Hangul choseong / jungseong fillers
+        | '\u{17B4}' | '\u{17B5}'     // Khmer inherent vowels
+        | '\u{180B}'..='\u{180D}'     // Mongolian free variation selectors
+        | '\u{180F}'
+        | '\u{3164}'                  // Hangul filler
+        | '\u{FE00}'..='\u{FE0F}'     // variation selectors
+        | '\u{FFA0}'                  // halfwidth Hangul filler
+        | '\u{E0100}'..='\u{E01EF}' // variation selectors supplement
+    ) || c.general_category() == GeneralCategory::Format
+}
+
+/// True for decimal digits (General_Category `Nd`), with an ASCII shortcut.
+#[inline]
+pub(crate) fn is_decimal_digit(c: char) -> bool {
+    if c.is_ascii() {
+        c.is_ascii_digit()
+    } else {
+        c.general_category() == GeneralCategory::DecimalNumber
+    }
+}
+
+/// Writes the normalised form of `text` into `out` (cleared first) and
+/// returns the counts. `max_run` below 1 is treated as 1.
+pub fn normalize_into(text: &str, max_run: u8, out: &mut String) -> TextStats {
+    out.clear();
+    let max_run = usize::from(max_run.max(1));
+    if text.is_ascii() {
+        return normalize_ascii(text, max_run, out);
+    }
+    let mut sink = Folder {
+        out,
+        max_run,
+        last: None,
+        run: 0,
+        stats: TextStats::default(),
+    };
+    let visible = || text.chars().filter(|&c| !is_invisible(c));
+    if is_nfkc_quick(visible()) == IsNormalized::Yes {
+        visible().for_each(|c| sink.push(c));
+    } else {
+        visible().nfkc().for_each(|c| sink.push(c));
+    }
+    sink.stats
+}
+
+/// Per byte, the [`TextStats`] increments packed as 16-bit lanes:
+/// uppercase, lowercase, digit, non-space (lowest lane first).
+static COUNT_LANES: [u64; 256] = count_lanes();
+
+const fn count_lanes() -> [u64; 256] {
+    let mut lanes = [0u64; 256];
+    let mut i = 0;
+    while i < 256 {
+        let byte = i as u8;
+        lanes[i] = (byte.is_ascii_uppercase() as u64)
+            | (byte.is_ascii_lowercase() as u64) << 16
+            | (byte.is_ascii_digit() as u64) << 32
+            | (!byte.is_ascii_whitespace() as u64) << 48;
+        i += 1;
+    }
+    lanes
+}
+
+/// The ASCII path. One pass counts and looks for runs to collapse; text
+/// without such runs (nearly all of it) is then copied and lowercased in
+/// bulk.
+fn normalize_ascii(text: &str, max_run: usize, out: &mut String) -> TextStats {
+    let bytes = text.as_bytes();
+    let mut stats = TextStats {
+        chars: bytes.len(),
+        ..TextStats::default()
+    };
+    // Four 16-bit counters packed in one u64, one table lookup per byte;
+    // chunks of at most 65535 bytes keep every lane from overflowing.
+    for chunk in bytes.chunks(usize::from(u16::MAX)) {
+        let mut packed = 0u64;
+        for &byte in chunk {
+            packed += COUNT_LANES[usize::from(byte)];
+        }
+        stats.uppercase += (packed & 0xffff) as usize;
+        stats.lowercase += ((packed >> 16) & 0xffff) as usize;
+        stats.digits += ((packed >> 32) & 0xffff) as usize;
+        stats.non_space += (packed >> 48) as usize;
+    }
+    let mut last = 0u8;
+    let mut run = 0usize;
+    let mut has_long_run = false;
+    for &byte in bytes {
+        let lower = byte.to_ascii_lowercase();
+        if lower == last {
+            run += 1;
+            has_long_run |= run > max_run && !lower.is_ascii_digit();
+        } else {
+            last = lower;
+            run = 1;
+        }
+    }
+    if !has_long_run {
+        out.push_str(text);
+        out.make_ascii_lowercase();
+        return stats;
+    }
+    out.reserve(bytes.len());
+    let mut last = 0u8;
+    let mut run = 0usize;
+    for &byte in bytes {
+        let lower = byte.to_ascii_lowercase();
+        if lower == last && run > 0 {
+            if run >= max_run && !lower.is_ascii_digit() {
+                continue;
+            }
+            run += 1;
+        } else {
+            last = lower;
+            run = 1;
+        }
+        out.push(char::from(lower));
+    }
+    stats
+}
+
+/// Steps 3 and 4 for one character at a time, plus the counts.
+struct Folder<'a> {
+    out: &'a mut String,
+    max_run: usize,
+    last: Option<char>,
+    run: usize,
+    stats: TextStats,
+}
+
+impl Folder<'_> {
+    fn push(&mut self, c: char) {
+        self.stats.chars += 1;
+        if c.is_ascii() {
+            // Most characters of mostly-ASCII text: no table lookups.
+            let byte = c as u8;
+            self.stats.uppercase += usize::from(byte.is_ascii_uppercase());
+            self.stats.lowercase += usize::from(byte.is_ascii_lowercase());
+            self.stats.digits += usize::from(byte.is_ascii_digit());
+            self.stats.non_space += usize::from(!byte.is_ascii_whitespace());
+            self.put(char::from(byte.to_ascii_lowercase()));
+            return;
+        }
+        self.stats.uppercase += usize::from(c.is_uppercase());
+        self.stats.lowercase += usize::from(c.is_lowercase());
+        self.stats.digits += usize::from(is_decimal_digit(c));
+        self.stats.non_space += usize::from(!c.is_whitespace());
+        for lower in c.to_lowercase() {
+            self.put(lower);
+        }
+    }
+
+    /// Appends one folded character unless it extends a run past `max_run`.
+    #[inline]
+    fn put(&mut self, lower: char) {
+        if self.last == Some(lower) {
+            if self.run >= self.max_run && !lower.is_numeric() {
+                return;
+            }
+            self.run += 1;
+        } else {
+            self.last = Some(lower);
+            self.run = 1;
+        }
+        self.out.push(lower);
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn norm(text: &str) -> String {
+        let mut out = String::new();
+        normalize_into(text, 3, &mut out);
+        out
+    }
+
+    #[test]
+    fn nfkc_compatibility_forms() {
+        // Decomposition mappings from the Unicode Character Database
+        // (UnicodeData.txt), applied as NFKC per UAX #15.
+        assert_eq!(norm("\u{FB01}nance"), "finance"); // U+FB01 LATIN SMALL LIGATURE FI -> f i
+        assert_eq!(norm("\u{FF26}\u{FF32}\u{FF25}\u{FF25}"), "free"); // fullwidth F R E E (<wide>)
+        assert_eq!(norm("x\u{00B2}"), "x2"); // U+00B2 SUPERSCRIPT TWO -> 2 (<super>)
+        assert_eq!(norm("\u{212A}"), "k"); // U+212A KELVIN SIGN -> K (canonical singleton)
+        assert_eq!(norm("\u{2460}"), "1"); // U+2460 CIRCLED DIGIT ONE -> 1 (<circle>)
+    }
+
+    #[test]
+    fn canonical_composition() {
+        // UAX #15: e + U+0301 COMBINING ACUTE ACCENT composes to U+00E9.
+        assert_eq!(norm("cafe\u{0301}"), "caf\u{00E9}");
+        // Even when a zero-width space sat between them.
+        assert_eq!(norm("cafe\u{200B}\u{0301}"), "caf\u{00E9}");
+    }
+
+    #[test]
+    fn invisible_characters_are_removed() {
+        assert_eq!(norm("fr\u{200B}ee"), "free"); // zero-width space (Cf)
+        assert_eq!(norm("of\u{00AD}fer"), "offer"); // soft hyphen (Cf)
+        assert_eq!(norm("w\u{200C}i\u{200D}n\u{2060}"), "win"); // ZWNJ, ZWJ, word joiner (Cf)
+        assert_eq!(norm("\u{FEFF}hi\u{202E}"), "hi"); // BOM, right-to-left override (Cf)
+        assert_eq!(norm("a\u{034F}b\u{FE0F}c\u{3164}d"), "abcd"); // default-ignorable, not Cf
+        assert!(is_invisible('\u{E0041}')); // tag letter A (Cf)
+        assert!(!is_invisible('a') && !is_invisible('\u{00E9}') && !is_invisible(' '));
+    }
+
+    #[test]
+    fn lowercase_is_per_character() {
+        assert_eq!(norm("FREE Money"), "free money");
+        assert_eq!(norm("\u{00C9}T\u{00C9}"), "\u{00E9}t\u{00E9}");
+        // char::to_lowercase maps capital sigma to σ even at a word end.
+        assert_eq!(norm("\u{03A3}\u{03A3}"), "\u{03C3}\u{03C3}");
+    }
+
+    #[test]
+    fn long_runs_collapse_but_numbers_do_not() {
+        assert_eq!(norm("freeeeeee!!!!!!"), "freee!!!");
+        assert_eq!(norm("FREEeee"), "freee");
+        assert_eq!(norm("aaa"), "aaa");
+        assert_eq!(norm("call 0800 000000"), "call 0800 000000");
+        assert_eq!(
+            norm("\u{00E9}\u{00E9}\u{00E9}\u{00E9}\u{00E9}"),
+            "\u{00E9}\u{00E9}\u{00E9}"
+        );
+        let mut out = String::new();
+        normalize_into("yessss", 1, &mut out);
+        assert_eq!(out, "yes");
+        normalize_into("yessss", 0, &mut out);
+        assert_eq!(out, "yes", "0 acts as 1");
+    }
+
+    #[test]
+    fn runs_are_counted_after_invisibles_are_removed() {
+        assert_eq!(norm("e\u{200B}e\u{200B}e\u{200B}e\u{200B}e"), "eee");
+    }
+
+    #[test]
+    fn stats_are_taken_before_case_folding() {
+        let mut out = String::new();
+        let stats = normalize_into("WIN 100 Euro", 3, &mut out);
+        assert_eq!(
+            stats,
+            TextStats {
+                chars: 12,
+                uppercase: 4,
+                lowercase: 3,
+                digits: 3,
+                non_space: 10
+            }
+        );
+        let stats = normalize_into("\u{FF37}in \u{0661}\u{0662}", 3, &mut out);
+        // Fullwidth W becomes W (uppercase) before folding; Arabic-Indic digits are Nd.
+        assert_eq!(
+            stats,
+            TextStats {
+                chars: 6,
+                uppercase: 1,
+                lowercase: 2,
+                digits: 2,
+                non_space: 5
+            }
+        );
+        assert_eq!(out, "win \u{0661}\u{0662}");
+    }
+
+    #[test]
+    fn counts_do_not_overflow_on_long_text() {
+        let text = "Ab1 ".repeat(40_000);
+        let mut out = String::new();
+        let stats = normalize_into(&text, 3, &mut out);
+        assert_eq!(
+            stats,
+            TextStats {
+                chars: 160_000,
+                uppercase: 40_000,
+                lowercase: 40_000,
+                digits: 40_000,
+                non_space: 120_000
+            }
+        );
+    }
+
+    #[test]
+    fn ascii_and_general_paths_agree() {
+        // The same ASCII text with one non-ASCII character appended must
+        // normalise to the same prefix with the same counts plus one.
+        let ascii = "Hello WORLD!!!!! 12345 aaaaa\tTAB";
+        let mut fast = String::new();
+        let fast_stats = normalize_into(ascii, 3, &mut fast);
+        let mut general = String::new();
+        let general_stats = normalize_into(&format!("{ascii}\u{00E9}"), 3, &mut general);
+        assert_eq!(general, format!("{fast}\u{00E9}"));
+        assert_eq!(general_stats.chars, fast_stats.chars + 1);
+        assert_eq!(general_stats.lowercase, fast_stats.lowercase + 1);
+        assert_eq!(general_stats.uppercase, fast_stats.uppercase);
+        assert_eq!(general_stats.digits, fast_stats.digits);
+    }
+
+    #[test]
+    fn output_buffer_is_cleared() {
+        let mut out = String::from("stale");
+        normalize_into("", 3, &mut out);
+        assert_eq!(out, "");
+    }
+}
