@@ -29,6 +29,7 @@ pub mod checkpoint;
 mod logistic;
 mod model;
 mod rule;
+mod table;
 mod update;
 
 pub use batch::BatchFit;

@@ -12,6 +12,7 @@ use std::fmt;
 use std::ops::RangeInclusive;
 
 use crate::rule::{RuleProblem, UpdateRule, list_problems};
+use crate::table::SlotTable;
 use crate::update::{self, Ftrl, Slot};
 
 /// The table sizes a model may have, as powers of two. 2^8 slots is the
@@ -47,6 +48,14 @@ pub enum ModelError {
     /// undefined.
     #[error("batch fit: no examples given")]
     EmptyBatch,
+    /// The system refused the memory for the slot table.
+    #[error("cannot map {bytes} bytes for the model's slot table: {reason}")]
+    TableAllocation {
+        /// Size of the table asked for.
+        bytes: usize,
+        /// What the system said.
+        reason: String,
+    },
 }
 
 /// One feature's share of a prediction: how far it pushed the margin
@@ -75,7 +84,7 @@ pub struct Model {
     bits: u8,
     mask: u32,
     rule: UpdateRule,
-    slots: Vec<Slot>,
+    slots: SlotTable,
     examples_seen: u64,
 }
 
@@ -97,7 +106,10 @@ impl Model {
             bits,
             mask: (len - 1) as u32,
             rule,
-            slots: vec![[0.0, 0.0]; len],
+            slots: SlotTable::zeroed(len).map_err(|err| ModelError::TableAllocation {
+                bytes: len * std::mem::size_of::<Slot>(),
+                reason: err.to_string(),
+            })?,
             examples_seen: 0,
         })
     }
@@ -297,7 +309,7 @@ impl Model {
     /// This is what was allocated; pages of the table that were never
     /// written may not be resident yet.
     pub fn memory_bytes(&self) -> usize {
-        std::mem::size_of::<Model>() + self.slots.capacity() * std::mem::size_of::<Slot>()
+        std::mem::size_of::<Model>() + self.slots.byte_len()
     }
 
     /// The raw table, for the checkpoint writer.
@@ -340,7 +352,7 @@ impl PartialEq for Model {
             && self
                 .slots
                 .iter()
-                .zip(&other.slots)
+                .zip(other.slots.iter())
                 .all(|(a, b)| a[0].to_bits() == b[0].to_bits() && a[1].to_bits() == b[1].to_bits())
     }
 }
