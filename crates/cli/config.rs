@@ -1,0 +1,441 @@
+//! The deployment's configuration: `config/chaffgate.toml` plus environment overrides.
+//!
+//! The file describes the deployment; command-line flags describe one run.
+//! Every key has a default, so a missing file is fine. After the file is read,
+//! each `CHAFFGATE_<SECTION>_<KEY>` environment variable whose name matches a
+//! known key replaces that key's value (e.g. `CHAFFGATE_MODEL_FTRL_ALPHA=0.2`
+//! sets `model.ftrl.alpha`). Then one `validate()` collects every problem as
+//! `key = value: what is allowed`, and nothing starts while there are any.
+
+use std::collections::BTreeMap;
+use std::fmt;
+use std::path::Path;
+
+use anyhow::{Context, bail};
+use chaffgate_model::UpdateRule;
+use chaffgate_text::FeatureSettings;
+use serde::{Deserialize, Serialize};
+
+/// Where `chaffgate` looks for its configuration when `--config` is not given.
+pub const DEFAULT_CONFIG_PATH: &str = "config/chaffgate.toml";
+
+/// The whole configuration file, as read (before validation).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct Config {
+    pub features: FeatureSettings,
+    pub model: ModelConfig,
+    pub channels: BTreeMap<String, ChannelConfig>,
+}
+
+impl Default for Config {
+    fn default() -> Self {
+        let mut channels = BTreeMap::new();
+        channels.insert(DEFAULT_CHANNEL.to_owned(), ChannelConfig::default());
+        Config {
+            features: FeatureSettings::default(),
+            model: ModelConfig::default(),
+            channels,
+        }
+    }
+}
+
+/// The channel whose thresholds apply to messages that name no channel, or
+/// a channel without thresholds of its own.
+pub const DEFAULT_CHANNEL: &str = "default";
+
+/// Which update rule learns, and the hyper-parameters of each.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct ModelConfig {
+    /// `ftrl` or `adagrad`.
+    pub rule: RuleName,
+    pub ftrl: FtrlConfig,
+    pub adagrad: AdagradConfig,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum RuleName {
+    Ftrl,
+    Adagrad,
+}
+
+impl fmt::Display for RuleName {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            RuleName::Ftrl => f.write_str("ftrl"),
+            RuleName::Adagrad => f.write_str("adagrad"),
+        }
+    }
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct FtrlConfig {
+    pub alpha: f64,
+    pub beta: f64,
+    pub l1: f64,
+    pub l2: f64,
+}
+
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct AdagradConfig {
+    pub eta: f64,
+    pub l2: f64,
+    pub delta: f64,
+}
+
+// The defaults below come from the search recorded in docs/tuning.md.
+impl Default for ModelConfig {
+    fn default() -> Self {
+        ModelConfig {
+            rule: RuleName::Ftrl,
+            ftrl: FtrlConfig::default(),
+            adagrad: AdagradConfig::default(),
+        }
+    }
+}
+
+impl Default for FtrlConfig {
+    fn default() -> Self {
+        FtrlConfig {
+            alpha: 0.5,
+            beta: 0.01,
+            l1: 0.0,
+            l2: 0.0,
+        }
+    }
+}
+
+impl Default for AdagradConfig {
+    fn default() -> Self {
+        AdagradConfig {
+            eta: 0.5,
+            l2: 0.0,
+            delta: 0.01,
+        }
+    }
+}
+
+impl ModelConfig {
+    /// The update rule this configuration selects, with its hyper-parameters.
+    pub fn update_rule(&self) -> UpdateRule {
+        match self.rule {
+            RuleName::Ftrl => UpdateRule::Ftrl {
+                alpha: self.ftrl.alpha,
+                beta: self.ftrl.beta,
+                l1: self.ftrl.l1,
+                l2: self.ftrl.l2,
+            },
+            RuleName::Adagrad => UpdateRule::Adagrad {
+                eta: self.adagrad.eta,
+                l2: self.adagrad.l2,
+                delta: self.adagrad.delta,
+            },
+        }
+    }
+}
+
+/// The `p_junk` thresholds that turn a score into a verdict for one channel.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct ChannelConfig {
+    /// `p_junk` at or above this is `junk`.
+    pub junk_threshold: f64,
+    /// `p_junk` at or above this (and below `junk_threshold`) is `review`.
+    pub review_threshold: f64,
+}
+
+impl Default for ChannelConfig {
+    fn default() -> Self {
+        // A wide review band by default: a person looks before anything
+        // uncertain is hidden (common practice, no source).
+        ChannelConfig {
+            junk_threshold: 0.9,
+            review_threshold: 0.4,
+        }
+    }
+}
+
+/// The three verdicts, lowercase on the wire.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Verdict {
+    Junk,
+    Review,
+    Fine,
+}
+
+impl fmt::Display for Verdict {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        match self {
+            Verdict::Junk => f.write_str("junk"),
+            Verdict::Review => f.write_str("review"),
+            Verdict::Fine => f.write_str("fine"),
+        }
+    }
+}
+
+impl ChannelConfig {
+    pub fn verdict(&self, p_junk: f64) -> Verdict {
+        if p_junk >= self.junk_threshold {
+            Verdict::Junk
+        } else if p_junk >= self.review_threshold {
+            Verdict::Review
+        } else {
+            Verdict::Fine
+        }
+    }
+}
+
+impl Config {
+    /// Reads `path` if it exists (a missing file at the default path means
+    /// "all defaults"; a missing file the user named is an error), applies
+    /// environment overrides from `env`, and validates the result.
+    pub fn load(
+        path: Option<&Path>,
+        env: impl IntoIterator<Item = (String, String)>,
+    ) -> anyhow::Result<Config> {
+        let (text, origin) = match path {
+            Some(path) => (
+                std::fs::read_to_string(path)
+                    .with_context(|| format!("reading config {}", path.display()))?,
+                path.display().to_string(),
+            ),
+            None => match std::fs::read_to_string(DEFAULT_CONFIG_PATH) {
+                Ok(text) => (text, DEFAULT_CONFIG_PATH.to_owned()),
+                Err(err) if err.kind() == std::io::ErrorKind::NotFound => {
+                    (String::new(), "built-in defaults".to_owned())
+                }
+                Err(err) => {
+                    return Err(err)
+                        .with_context(|| format!("reading config {DEFAULT_CONFIG_PATH}"));
+                }
+            },
+        };
+        let mut table: toml::Table =
+            toml::from_str(&text).with_context(|| format!("parsing config {origin}"))?;
+        apply_env_overrides(&mut table, env)?;
+        let config: Config = toml::Value::Table(table)
+            .try_into()
+            .with_context(|| format!("reading config {origin} (with environment overrides)"))?;
+        config.validate()?;
+        Ok(config)
+    }
+
+    /// Checks every value and reports all problems at once.
+    pub fn validate(&self) -> anyhow::Result<()> {
+        let mut problems: Vec<String> = Vec::new();
+        if let Err(found) = self.features.validate() {
+            problems.extend(found.iter().map(|p| p.to_string()));
+        }
+        if let Err(found) = self.model.update_rule().validate() {
+            // The model names keys `model.<param>`; in this file they sit
+            // under the rule's own table.
+            let table = format!("model.{}.", self.model.rule);
+            problems.extend(
+                found
+                    .iter()
+                    .map(|p| p.to_string().replacen("model.", &table, 1)),
+            );
+        }
+        if !self.channels.contains_key(DEFAULT_CHANNEL) {
+            problems.push(format!(
+                "channels.{DEFAULT_CHANNEL} is missing: the default channel must have thresholds"
+            ));
+        }
+        for (name, channel) in &self.channels {
+            let junk = channel.junk_threshold;
+            let review = channel.review_threshold;
+            if !(0.0..=1.0).contains(&junk) {
+                problems.push(format!(
+                    "channels.{name}.junk_threshold = {junk}: must be between 0 and 1"
+                ));
+            }
+            if !(0.0..=1.0).contains(&review) {
+                problems.push(format!(
+                    "channels.{name}.review_threshold = {review}: must be between 0 and 1"
+                ));
+            }
+            if review > junk {
+                problems.push(format!(
+                    "channels.{name}.review_threshold = {review}: must not be above junk_threshold ({junk})"
+                ));
+            }
+        }
+        if problems.is_empty() {
+            return Ok(());
+        }
+        bail!("invalid configuration:\n  {}", problems.join("\n  "))
+    }
+
+    /// The thresholds for `channel`, falling back to the default channel.
+    pub fn channel(&self, channel: Option<&str>) -> ChannelConfig {
+        channel
+            .and_then(|name| self.channels.get(name))
+            .or_else(|| self.channels.get(DEFAULT_CHANNEL))
+            .copied()
+            .unwrap_or_default()
+    }
+}
+
+/// Replaces keys of `table` with `CHAFFGATE_<PATH>` environment values.
+///
+/// The set of known keys is taken from the defaults, so a variable maps to
+/// exactly one key (`model.ftrl.alpha` <- `CHAFFGATE_MODEL_FTRL_ALPHA`) and
+/// unknown `CHAFFGATE_` variables are reported rather than ignored.
+fn apply_env_overrides(
+    table: &mut toml::Table,
+    env: impl IntoIterator<Item = (String, String)>,
+) -> anyhow::Result<()> {
+    let defaults = toml::Table::try_from(Config::default()).context("listing config keys")?;
+    let mut known: Vec<Vec<String>> = Vec::new();
+    collect_key_paths(&defaults, &mut Vec::new(), &mut known);
+    // Channels other than the default are named by the operator; accept
+    // CHAFFGATE_CHANNELS_<NAME>_<KEY> for any channel in the file too.
+    if let Some(toml::Value::Table(channels)) = table.get("channels") {
+        for (name, value) in channels {
+            if let toml::Value::Table(keys) = value {
+                for key in keys.keys() {
+                    known.push(vec!["channels".into(), name.clone(), key.clone()]);
+                }
+            }
+        }
+    }
+
+    for (name, raw) in env {
+        let Some(suffix) = name.strip_prefix("CHAFFGATE_") else {
+            continue;
+        };
+        let Some(path) = known
+            .iter()
+            .find(|path| path.join("_").to_uppercase() == suffix)
+        else {
+            continue;
+        };
+        let value = parse_env_value(&raw);
+        insert_path(table, path, value)
+            .with_context(|| format!("applying environment variable {name}"))?;
+    }
+    Ok(())
+}
+
+fn collect_key_paths(table: &toml::Table, prefix: &mut Vec<String>, out: &mut Vec<Vec<String>>) {
+    for (key, value) in table {
+        prefix.push(key.clone());
+        match value {
+            toml::Value::Table(inner) => collect_key_paths(inner, prefix, out),
+            _ => out.push(prefix.clone()),
+        }
+        prefix.pop();
+    }
+}
+
+/// An environment value is read as a TOML scalar when it parses as one
+/// (`0.2`, `true`, `22`), otherwise as a plain string (`ftrl`).
+fn parse_env_value(raw: &str) -> toml::Value {
+    let probe = format!("v = {raw}");
+    match toml::from_str::<toml::Table>(&probe) {
+        Ok(mut table) => table
+            .remove("v")
+            .unwrap_or_else(|| toml::Value::String(raw.to_owned())),
+        Err(_) => toml::Value::String(raw.to_owned()),
+    }
+}
+
+fn insert_path(table: &mut toml::Table, path: &[String], value: toml::Value) -> anyhow::Result<()> {
+    let (last, parents) = path.split_last().context("empty key path")?;
+    let mut current = table;
+    for key in parents {
+        let entry = current
+            .entry(key.clone())
+            .or_insert_with(|| toml::Value::Table(toml::Table::new()));
+        current = match entry {
+            toml::Value::Table(inner) => inner,
+            _ => bail!("{key} is not a table in the config file"),
+        };
+    }
+    current.insert(last.clone(), value);
+    Ok(())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn load_str(text: &str, env: &[(&str, &str)]) -> anyhow::Result<Config> {
+        let dir = tempfile::tempdir()?;
+        let path = dir.path().join("c.toml");
+        std::fs::write(&path, text)?;
+        let env = env.iter().map(|(k, v)| (k.to_string(), v.to_string()));
+        Config::load(Some(&path), env)
+    }
+
+    #[test]
+    fn empty_file_gives_defaults() {
+        assert_eq!(load_str("", &[]).unwrap(), Config::default());
+    }
+
+    #[test]
+    fn committed_default_config_matches_built_in_defaults() {
+        let text = include_str!("../../config/chaffgate.toml");
+        let config: Config = toml::from_str(text).unwrap();
+        assert_eq!(config, Config::default());
+    }
+
+    #[test]
+    fn environment_overrides_nested_keys() {
+        let config = load_str(
+            "[model]\nrule = \"ftrl\"\n",
+            &[
+                ("CHAFFGATE_MODEL_FTRL_ALPHA", "0.25"),
+                ("CHAFFGATE_MODEL_RULE", "adagrad"),
+                ("CHAFFGATE_FEATURES_BITS", "20"),
+                ("UNRELATED", "x"),
+            ],
+        )
+        .unwrap();
+        assert_eq!(config.model.ftrl.alpha, 0.25);
+        assert_eq!(config.model.rule, RuleName::Adagrad);
+        assert_eq!(config.features.bits, 20);
+    }
+
+    #[test]
+    fn bad_values_are_all_reported_with_key_and_allowed_range() {
+        let err = load_str(
+            "[features]\nbits = 40\n[channels.default]\njunk_threshold = 1.5\n",
+            &[("CHAFFGATE_MODEL_FTRL_ALPHA", "nan")],
+        )
+        .unwrap_err();
+        let text = format!("{err:#}");
+        assert!(text.contains("features.bits = 40"), "{text}");
+        assert!(
+            text.contains("channels.default.junk_threshold = 1.5"),
+            "{text}"
+        );
+        assert!(
+            text.contains("model.alpha") || text.contains("alpha"),
+            "{text}"
+        );
+    }
+
+    #[test]
+    fn unknown_keys_are_rejected_by_name() {
+        let err = load_str("[model]\nspeed = 3\n", &[]).unwrap_err();
+        assert!(format!("{err:#}").contains("speed"));
+    }
+
+    #[test]
+    fn verdicts_follow_thresholds() {
+        let channel = ChannelConfig {
+            junk_threshold: 0.9,
+            review_threshold: 0.4,
+        };
+        assert_eq!(channel.verdict(0.95), Verdict::Junk);
+        assert_eq!(channel.verdict(0.9), Verdict::Junk);
+        assert_eq!(channel.verdict(0.5), Verdict::Review);
+        assert_eq!(channel.verdict(0.1), Verdict::Fine);
+    }
+}

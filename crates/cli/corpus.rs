@@ -1,0 +1,246 @@
+//! Labelled corpora: JSONL message objects or two-column `LABEL<TAB>TEXT` files.
+//!
+//! A corpus's own label words are translated here and go no further:
+//! `spam`/`ham` (as in the SMS Spam Collection) become `junk`/`fine`.
+//! A malformed line stops loading with its line number and what is wrong,
+//! unless the caller asks to skip bad lines, in which case they are counted.
+
+use std::fmt;
+use std::path::Path;
+
+use anyhow::{Context, bail};
+use chaffgate_text::Message;
+
+/// One message with the label a person gave it.
+#[derive(Debug, Clone)]
+pub struct Labelled {
+    pub message: Message,
+    pub is_junk: bool,
+}
+
+/// What a loaded corpus holds, and what was skipped on the way.
+#[derive(Debug)]
+pub struct Corpus {
+    pub items: Vec<Labelled>,
+    pub skipped: Vec<LineProblem>,
+}
+
+impl Corpus {
+    pub fn junk_count(&self) -> usize {
+        self.items.iter().filter(|item| item.is_junk).count()
+    }
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum CorpusFormat {
+    /// One JSON object per line: message fields plus `label`.
+    Jsonl,
+    /// `LABEL<TAB>TEXT` per line; LABEL is junk/fine or spam/ham.
+    Tsv,
+}
+
+/// A line that could not be read, with its 1-based number.
+#[derive(Debug, Clone)]
+pub struct LineProblem {
+    pub line: usize,
+    pub what: String,
+}
+
+impl fmt::Display for LineProblem {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        let (line, what) = (self.line, &self.what);
+        write!(f, "line {line}: {what}")
+    }
+}
+
+/// Picks the format from the file name (`.jsonl`/`.json` or `.tsv`/`.txt`),
+/// else from the first non-empty line (`{` means JSONL).
+pub fn detect_format(path: &Path, bytes: &[u8]) -> CorpusFormat {
+    let extension = path
+        .extension()
+        .and_then(|e| e.to_str())
+        .map(str::to_ascii_lowercase);
+    match extension.as_deref() {
+        Some("jsonl" | "json" | "ndjson") => return CorpusFormat::Jsonl,
+        Some("tsv" | "txt") => return CorpusFormat::Tsv,
+        _ => {}
+    }
+    let first = bytes
+        .split(|b| *b == b'\n')
+        .map(|line| line.trim_ascii())
+        .find(|line| !line.is_empty());
+    match first {
+        Some(line) if line.starts_with(b"{") => CorpusFormat::Jsonl,
+        _ => CorpusFormat::Tsv,
+    }
+}
+
+/// Loads a corpus file. Empty lines are ignored.
+pub fn load(path: &Path, format: Option<CorpusFormat>, skip_bad: bool) -> anyhow::Result<Corpus> {
+    let bytes =
+        std::fs::read(path).with_context(|| format!("reading corpus {}", path.display()))?;
+    let format = format.unwrap_or_else(|| detect_format(path, &bytes));
+    parse(&bytes, format, skip_bad).with_context(|| format!("reading corpus {}", path.display()))
+}
+
+/// Parses corpus bytes; see [`load`].
+pub fn parse(bytes: &[u8], format: CorpusFormat, skip_bad: bool) -> anyhow::Result<Corpus> {
+    let mut items = Vec::new();
+    let mut skipped = Vec::new();
+    for (index, raw) in bytes.split(|b| *b == b'\n').enumerate() {
+        let line_number = index + 1;
+        let raw = raw.strip_suffix(b"\r").unwrap_or(raw);
+        if raw.trim_ascii().is_empty() {
+            continue;
+        }
+        let parsed = match std::str::from_utf8(raw) {
+            Ok(line) => match format {
+                CorpusFormat::Jsonl => parse_jsonl_line(line),
+                CorpusFormat::Tsv => parse_tsv_line(line),
+            },
+            Err(err) => Err(format!("not valid UTF-8 ({err})")),
+        };
+        match parsed {
+            Ok(item) => items.push(item),
+            Err(what) => {
+                let problem = LineProblem {
+                    line: line_number,
+                    what,
+                };
+                if !skip_bad {
+                    bail!("{problem} (use --skip-bad to skip such lines)");
+                }
+                skipped.push(problem);
+            }
+        }
+    }
+    if items.is_empty() {
+        bail!("no labelled messages found");
+    }
+    Ok(Corpus { items, skipped })
+}
+
+/// Maps a corpus label to `is_junk`.
+fn parse_label(label: &str) -> Result<bool, String> {
+    match label.trim().to_ascii_lowercase().as_str() {
+        "junk" | "spam" => Ok(true),
+        "fine" | "ham" => Ok(false),
+        _ => Err(format!(
+            "label {label:?} is not one of junk, fine (or spam, ham)"
+        )),
+    }
+}
+
+fn parse_tsv_line(line: &str) -> Result<Labelled, String> {
+    let Some((label, text)) = line.split_once('\t') else {
+        return Err("expected LABEL<TAB>TEXT, found no tab".to_owned());
+    };
+    let is_junk = parse_label(label)?;
+    let message = Message {
+        body: Some(text.to_owned()),
+        ..Message::default()
+    };
+    Ok(Labelled { message, is_junk })
+}
+
+fn parse_jsonl_line(line: &str) -> Result<Labelled, String> {
+    let value: serde_json::Value =
+        serde_json::from_str(line).map_err(|err| format!("not valid JSON: {err}"))?;
+    let serde_json::Value::Object(mut object) = value else {
+        return Err("expected a JSON object".to_owned());
+    };
+    let label = match object.remove("label") {
+        Some(serde_json::Value::String(label)) => label,
+        Some(other) => return Err(format!("label must be a string, found {other}")),
+        None => return Err("missing \"label\"".to_owned()),
+    };
+    let is_junk = parse_label(&label)?;
+    let message: Message = serde_json::from_value(serde_json::Value::Object(object))
+        .map_err(|err| format!("not a message: {err}"))?;
+    if message.is_empty() {
+        return Err("the message has no subject, body, sender or meta".to_owned());
+    }
+    Ok(Labelled { message, is_junk })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn tsv_labels_map_to_product_words() {
+        let corpus = parse(
+            b"spam\tWin now\nham\thello there\r\n\nfine\tok\n",
+            CorpusFormat::Tsv,
+            false,
+        )
+        .unwrap();
+        let labels: Vec<bool> = corpus.items.iter().map(|i| i.is_junk).collect();
+        assert_eq!(labels, [true, false, false]);
+        assert_eq!(corpus.items[1].message.body.as_deref(), Some("hello there"));
+    }
+
+    #[test]
+    fn malformed_line_stops_with_its_number() {
+        let err = parse(b"ham\tok\nno tab here\n", CorpusFormat::Tsv, false).unwrap_err();
+        let text = format!("{err:#}");
+        assert!(text.contains("line 2"), "{text}");
+        assert!(text.contains("no tab"), "{text}");
+    }
+
+    #[test]
+    fn skip_bad_counts_what_was_skipped() {
+        let corpus = parse(
+            b"ham\tok\nmaybe\tunsure\n\xff\xfe\tbytes\njunk\tbuy\n",
+            CorpusFormat::Tsv,
+            true,
+        )
+        .unwrap();
+        assert_eq!(corpus.items.len(), 2);
+        let lines: Vec<usize> = corpus.skipped.iter().map(|p| p.line).collect();
+        assert_eq!(lines, [2, 3]);
+        assert!(corpus.skipped[0].what.contains("\"maybe\""));
+        assert!(corpus.skipped[1].what.contains("UTF-8"));
+    }
+
+    #[test]
+    fn jsonl_reads_message_fields_and_label() {
+        let text = br#"{"subject":"Order 12","body":"Where is it?","sender":"a@shop.example.org","meta":{"vip":true},"label":"fine"}
+{"body":"cheap watches","label":"junk"}"#;
+        let corpus = parse(text, CorpusFormat::Jsonl, false).unwrap();
+        assert_eq!(corpus.items.len(), 2);
+        assert_eq!(corpus.items[0].message.subject.as_deref(), Some("Order 12"));
+        assert!(corpus.items[1].is_junk);
+    }
+
+    #[test]
+    fn jsonl_problems_are_named() {
+        for (line, expected) in [
+            (r#"{"body":"x"}"#, "missing \"label\""),
+            (r#"{"body":"x","label":"bad"}"#, "not one of"),
+            (r#"{"bodyy":"x","label":"junk"}"#, "bodyy"),
+            (r#"{"label":"junk"}"#, "no subject"),
+            (r#"[1,2]"#, "JSON object"),
+            (r#"{"body":"x""#, "not valid JSON"),
+        ] {
+            let err = parse(line.as_bytes(), CorpusFormat::Jsonl, false).unwrap_err();
+            let text = format!("{err:#}");
+            assert!(text.contains(expected), "{line}: {text}");
+            assert!(text.contains("line 1"), "{line}: {text}");
+        }
+    }
+
+    #[test]
+    fn format_is_detected_from_name_then_content() {
+        assert_eq!(
+            detect_format(Path::new("a.jsonl"), b""),
+            CorpusFormat::Jsonl
+        );
+        assert_eq!(detect_format(Path::new("a.tsv"), b"{"), CorpusFormat::Tsv);
+        assert_eq!(
+            detect_format(Path::new("a"), b"\n {\"x\":1}"),
+            CorpusFormat::Jsonl
+        );
+        assert_eq!(detect_format(Path::new("a"), b"ham\tx"), CorpusFormat::Tsv);
+    }
+}

@@ -1,0 +1,253 @@
+//! The `chaffgate` command: learn from corpora, measure, and score messages.
+//!
+//! The only code that reads files named on the command line, the
+//! environment and stdin, prints to the terminal or picks an exit code:
+//! 0 on success, 1 on any error (printed as a chain), 2 for usage mistakes.
+
+mod config;
+mod corpus;
+mod eval;
+mod pipeline;
+
+use std::io::Read;
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+
+use anyhow::{Context, bail};
+use chaffgate_text::{HashKey, Message};
+use clap::{Args, Parser, Subcommand};
+use rand::seq::SliceRandom;
+use rand_chacha::ChaCha8Rng;
+use rand_chacha::rand_core::SeedableRng;
+
+use crate::config::Config;
+use crate::corpus::{Corpus, CorpusFormat};
+use crate::eval::Protocol;
+use crate::pipeline::Pipeline;
+
+/// The hash key `eval` uses unless told otherwise. It is public, so it is
+/// only for measuring: figures are then reproducible run to run. Models
+/// meant for service get a fresh random key (`train`).
+const EVALUATION_KEY_HEX: &str = "00000000000000000000000000000000";
+
+#[derive(Parser)]
+#[command(
+    name = "chaffgate",
+    version,
+    about = "Scores messages for junk and learns from moderators"
+)]
+struct Cli {
+    /// Configuration file (default: config/chaffgate.toml if present).
+    #[arg(long, global = true, value_name = "FILE")]
+    config: Option<PathBuf>,
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Learn from a labelled corpus and write a model file.
+    Train(TrainArgs),
+    /// Measure the model on a labelled corpus (progressive validation by default).
+    Eval(EvalArgs),
+    /// Score one message (JSON on stdin) with a model file.
+    Score(ScoreArgs),
+}
+
+#[derive(Args)]
+struct CorpusArgs {
+    /// Labelled corpus: JSONL (message fields plus "label") or LABEL<TAB>TEXT.
+    #[arg(long, value_name = "FILE")]
+    corpus: PathBuf,
+    /// Corpus format (default: from the file name, else from its first line).
+    #[arg(long, value_enum)]
+    format: Option<CorpusFormat>,
+    /// Skip malformed lines (and count them) instead of stopping at the first.
+    #[arg(long)]
+    skip_bad: bool,
+    /// Shuffle the corpus with this seed before use (default: file order).
+    #[arg(long, value_name = "SEED")]
+    shuffle: Option<u64>,
+}
+
+#[derive(Args)]
+struct TrainArgs {
+    #[command(flatten)]
+    corpus: CorpusArgs,
+    /// Where to write the model.
+    #[arg(long, value_name = "MODEL")]
+    out: PathBuf,
+    /// Passes over the corpus.
+    #[arg(long, default_value_t = 1, value_parser = clap::value_parser!(u32).range(1..=1000))]
+    passes: u32,
+    /// Feature hash key as 32 hex digits (default: a fresh random key).
+    #[arg(long, value_name = "HEX")]
+    hash_key: Option<String>,
+}
+
+#[derive(Args)]
+struct EvalArgs {
+    #[command(flatten)]
+    corpus: CorpusArgs,
+    /// Learn from the first (1 - F) of the corpus and judge only the last F.
+    #[arg(long, value_name = "F")]
+    holdout: Option<f64>,
+    /// Passes over the learning part (with --holdout only).
+    #[arg(long, default_value_t = 1, value_parser = clap::value_parser!(u32).range(1..=1000))]
+    passes: u32,
+    /// p_junk at or above which a message counts as flagged junk in the report.
+    #[arg(long, default_value_t = 0.5)]
+    threshold: f64,
+    /// Print the report as JSON.
+    #[arg(long)]
+    json: bool,
+    /// Feature hash key as 32 hex digits (default: a fixed public key, so
+    /// that figures are reproducible).
+    #[arg(long, value_name = "HEX")]
+    hash_key: Option<String>,
+}
+
+#[derive(Args)]
+struct ScoreArgs {
+    /// Model file written by `chaffgate train`.
+    #[arg(long, value_name = "MODEL")]
+    model: PathBuf,
+    /// How many reasons to show.
+    #[arg(long, default_value_t = 8)]
+    reasons: usize,
+    /// Print the result as JSON.
+    #[arg(long)]
+    json: bool,
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    match run(cli) {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(err) => {
+            eprintln!("error: {err:#}");
+            ExitCode::FAILURE
+        }
+    }
+}
+
+fn run(cli: Cli) -> anyhow::Result<()> {
+    let config = Config::load(cli.config.as_deref(), std::env::vars())?;
+    match cli.command {
+        Command::Train(args) => train(&config, args),
+        Command::Eval(args) => evaluate(&config, args),
+        Command::Score(args) => score(&config, args),
+    }
+}
+
+fn load_corpus(args: &CorpusArgs) -> anyhow::Result<Corpus> {
+    let mut corpus = corpus::load(&args.corpus, args.format, args.skip_bad)?;
+    if !corpus.skipped.is_empty() {
+        let count = corpus.skipped.len();
+        let first = &corpus.skipped[0];
+        eprintln!("skipped {count} malformed line(s); first: {first}");
+    }
+    if let Some(seed) = args.shuffle {
+        let mut rng = ChaCha8Rng::seed_from_u64(seed);
+        corpus.items.shuffle(&mut rng);
+    }
+    Ok(corpus)
+}
+
+fn parse_key(hex: Option<&str>, fallback: impl FnOnce() -> HashKey) -> anyhow::Result<HashKey> {
+    match hex {
+        Some(hex) => HashKey::from_hex(hex).context("reading --hash-key"),
+        None => Ok(fallback()),
+    }
+}
+
+fn train(config: &Config, args: TrainArgs) -> anyhow::Result<()> {
+    let key = parse_key(args.hash_key.as_deref(), || {
+        HashKey::from_bytes(rand::random::<[u8; 16]>())
+    })?;
+    let corpus = load_corpus(&args.corpus)?;
+    let mut pipeline = Pipeline::new(config.features.clone(), config.model.update_rule(), key)?;
+    for _ in 0..args.passes {
+        for item in &corpus.items {
+            pipeline.learn(&item.message, item.is_junk);
+        }
+    }
+    pipeline.save(&args.out)?;
+    let model = pipeline.model();
+    let messages = corpus.items.len();
+    let junk = corpus.junk_count();
+    let passes = args.passes;
+    let out = args.out.display();
+    let slots = model.nonzero_slots();
+    let rule = config.model.rule;
+    println!(
+        "learnt {messages} messages ({junk} junk) x {passes} pass(es) with {rule}; \
+         {slots} weights in use; model written to {out}"
+    );
+    Ok(())
+}
+
+fn evaluate(config: &Config, args: EvalArgs) -> anyhow::Result<()> {
+    let protocol = match args.holdout {
+        None => Protocol::Progressive,
+        Some(fraction) if fraction > 0.0 && fraction < 1.0 => Protocol::Holdout {
+            fraction,
+            passes: args.passes,
+        },
+        Some(fraction) => bail!("--holdout {fraction}: must be between 0 and 1 (exclusive)"),
+    };
+    if !(0.0..=1.0).contains(&args.threshold) {
+        let threshold = args.threshold;
+        bail!("--threshold {threshold}: must be between 0 and 1");
+    }
+    let key = parse_key(args.hash_key.as_deref(), || {
+        HashKey::from_hex(EVALUATION_KEY_HEX).unwrap_or_else(|_| HashKey::from_bytes([0; 16]))
+    })?;
+    let corpus = load_corpus(&args.corpus)?;
+    let mut pipeline = Pipeline::new(config.features.clone(), config.model.update_rule(), key)?;
+    let report = eval::run(&mut pipeline, &corpus.items, protocol, args.threshold)?;
+    if args.json {
+        println!("{}", serde_json::to_string_pretty(&report)?);
+    } else {
+        let name = display_name(&args.corpus.corpus);
+        let rule = config.model.rule;
+        let bits = pipeline.settings().bits;
+        println!("corpus                 {name}\nmodel                  {rule}, 2^{bits} slots");
+        print!("{}", eval::render(&report));
+    }
+    Ok(())
+}
+
+fn display_name(path: &Path) -> String {
+    path.file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| path.display().to_string())
+}
+
+fn score(config: &Config, args: ScoreArgs) -> anyhow::Result<()> {
+    let mut pipeline = Pipeline::open(&args.model)?;
+    let mut input = String::new();
+    std::io::stdin()
+        .read_to_string(&mut input)
+        .context("reading the message from stdin (it must be UTF-8 JSON)")?;
+    let message: Message =
+        serde_json::from_str(&input).context("reading the message JSON from stdin")?;
+    if message.is_empty() {
+        bail!("the message has no subject, body, sender or meta: nothing to score");
+    }
+    let p_junk = pipeline.score(&message);
+    let verdict = config.channel(message.channel.as_deref()).verdict(p_junk);
+    let reasons = pipeline.reasons(&message, args.reasons);
+    if args.json {
+        let out = serde_json::json!({ "p_junk": p_junk, "verdict": verdict, "reasons": reasons });
+        println!("{}", serde_json::to_string_pretty(&out)?);
+    } else {
+        println!("p_junk   {p_junk:.4}\nverdict  {verdict}\nreasons");
+        for reason in reasons {
+            let contribution = reason.contribution;
+            let feature = reason.feature;
+            println!("  {contribution:+.4}  {feature}");
+        }
+    }
+    Ok(())
+}

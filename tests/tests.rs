@@ -1,0 +1,7 @@
+//! End-to-end tests of the `chaffgate` binary.
+
+mod util;
+
+mod cli;
+mod logreg;
+mod sms;
