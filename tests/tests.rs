@@ -4,4 +4,5 @@ mod util;
 
 mod cli;
 mod logreg;
+mod server;
 mod sms;

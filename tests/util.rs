@@ -76,3 +76,131 @@ pub const SHOP_CORPUS: &str = r#"{"subject":"Where is my order 4411?","body":"He
 {"subject":"Workshop booking","body":"Can I book two places on the Saturday pottery workshop? My daughter is 12, is that okay?","sender":"kim@customer.example.org","label":"fine"}
 {"subject":"Top ranking for your shop","body":"We guarantee first page ranking for your shop in 10 days. Cheap offer, reply now for the price list.","sender":"seo@rank-boost.example.net","label":"junk"}
 "#;
+
+/// A real `chaffgate serve` process on an ephemeral loopback port, with its
+/// own data folder. Killed on drop if still running.
+pub struct TestServer {
+    child: Option<std::process::Child>,
+    pub base: String,
+    agent: ureq::Agent,
+}
+
+impl TestServer {
+    /// Starts a server whose data lives in `dir/data`, with extra
+    /// `CHAFFGATE_*` settings.
+    pub fn start_in(dir: &std::path::Path, env: &[(&str, &str)]) -> TestServer {
+        use std::io::{BufRead, BufReader};
+        let data_dir = dir.join("data");
+        let log = std::fs::OpenOptions::new()
+            .create(true)
+            .append(true)
+            .open(dir.join("server.log"))
+            .expect("server log");
+        let mut command = Command::new(env!("CARGO_BIN_EXE_chaffgate"));
+        command
+            .arg("serve")
+            .current_dir(dir)
+            .env("CHAFFGATE_SERVER_LISTEN", "127.0.0.1:0")
+            .env("CHAFFGATE_SERVER_DATA_DIR", &data_dir)
+            // 2^16 slots keep two model copies small in tests.
+            .env("CHAFFGATE_FEATURES_BITS", "16")
+            .stdin(Stdio::null())
+            .stdout(Stdio::piped())
+            .stderr(Stdio::from(log));
+        for (key, value) in env {
+            command.env(key, value);
+        }
+        let mut child = command.spawn().expect("starting chaffgate serve");
+        let stdout = child.stdout.take().expect("stdout");
+        let mut line = String::new();
+        BufReader::new(stdout)
+            .read_line(&mut line)
+            .expect("reading stdout");
+        let Some(address) = line.trim().strip_prefix("chaffgate listening on ") else {
+            let _ = child.kill();
+            let log = std::fs::read_to_string(dir.join("server.log")).unwrap_or_default();
+            panic!("server did not start: {line:?}\n{log}");
+        };
+        let config = ureq::Agent::config_builder()
+            .http_status_as_error(false)
+            .timeout_global(Some(std::time::Duration::from_secs(30)))
+            .build();
+        let server = TestServer {
+            child: Some(child),
+            base: address.to_owned(),
+            agent: config.into(),
+        };
+        server.wait_ready();
+        server
+    }
+
+    fn wait_ready(&self) {
+        for _ in 0..500 {
+            if self.get("/readyz").0 == 200 {
+                return;
+            }
+            std::thread::sleep(std::time::Duration::from_millis(10));
+        }
+        panic!("server never became ready");
+    }
+
+    fn answer(
+        response: Result<ureq::http::Response<ureq::Body>, ureq::Error>,
+    ) -> (u16, serde_json::Value) {
+        let mut response = response.expect("HTTP request");
+        let status = response.status().as_u16();
+        let text = response.body_mut().read_to_string().expect("body");
+        let value = serde_json::from_str(&text).unwrap_or(serde_json::Value::String(text));
+        (status, value)
+    }
+
+    pub fn get(&self, path: &str) -> (u16, serde_json::Value) {
+        Self::answer(self.agent.get(format!("{}{path}", self.base)).call())
+    }
+
+    pub fn post(&self, path: &str, body: &str) -> (u16, serde_json::Value) {
+        Self::answer(
+            self.agent
+                .post(format!("{}{path}", self.base))
+                .header("content-type", "application/json")
+                .send(body),
+        )
+    }
+
+    /// Posts with a content type of the caller's choice.
+    pub fn post_as(&self, path: &str, content_type: &str, body: &str) -> (u16, serde_json::Value) {
+        Self::answer(
+            self.agent
+                .post(format!("{}{path}", self.base))
+                .header("content-type", content_type)
+                .send(body),
+        )
+    }
+
+    /// SIGTERM, then waits; returns whether it exited 0.
+    pub fn stop(mut self) -> bool {
+        let mut child = self.child.take().expect("running");
+        let pid = child.id().to_string();
+        Command::new("kill")
+            .args(["-TERM", &pid])
+            .status()
+            .expect("kill -TERM");
+        child.wait().expect("waiting for the server").success()
+    }
+
+    /// SIGKILL: no chance to flush or checkpoint.
+    pub fn kill_hard(mut self) {
+        let mut child = self.child.take().expect("running");
+        child.kill().expect("kill -9");
+        let _ = child.wait();
+    }
+}
+
+impl Drop for TestServer {
+    fn drop(&mut self) {
+        if let Some(mut child) = self.child.take() {
+            let _ = child.kill();
+            let _ = child.wait();
+        }
+    }
+}

@@ -9,7 +9,7 @@
 
 use std::collections::BTreeMap;
 use std::fmt;
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 use anyhow::{Context, bail};
 use chaffgate_model::UpdateRule;
@@ -23,6 +23,9 @@ pub const DEFAULT_CONFIG_PATH: &str = "config/chaffgate.toml";
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct Config {
+    pub server: ServerConfig,
+    pub audit: AuditConfig,
+    pub learner: LearnerConfig,
     pub features: FeatureSettings,
     pub model: ModelConfig,
     pub channels: BTreeMap<String, ChannelConfig>,
@@ -33,9 +36,100 @@ impl Default for Config {
         let mut channels = BTreeMap::new();
         channels.insert(DEFAULT_CHANNEL.to_owned(), ChannelConfig::default());
         Config {
+            server: ServerConfig::default(),
+            audit: AuditConfig::default(),
+            learner: LearnerConfig::default(),
             features: FeatureSettings::default(),
             model: ModelConfig::default(),
             channels,
+        }
+    }
+}
+
+/// Where and how the daemon listens.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct ServerConfig {
+    /// Address and port to listen on.
+    pub listen: String,
+    /// Folder for the database and checkpoints, created on first start.
+    pub data_dir: PathBuf,
+    /// Largest request body accepted (413 above).
+    pub max_body_bytes: u64,
+    /// Most messages in one batch request.
+    pub max_batch: u32,
+    /// Largest text of one message (413 above).
+    pub max_message_bytes: u64,
+    /// Reasons given with each decision.
+    pub reasons: u32,
+}
+
+impl Default for ServerConfig {
+    fn default() -> Self {
+        ServerConfig {
+            listen: "127.0.0.1:7300".to_owned(),
+            data_dir: PathBuf::from("data"),
+            max_body_bytes: 1024 * 1024,
+            max_batch: 100,
+            max_message_bytes: 256 * 1024,
+            reasons: 8,
+        }
+    }
+}
+
+/// What the audit log keeps and when a score is acknowledged.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct AuditConfig {
+    /// Keep each message's text in its decision row (otherwise a digest).
+    pub keep_text: bool,
+    /// `after_commit` or `after_queue`.
+    pub ack: AckName,
+    /// Most decision rows committed in one transaction.
+    pub max_batch_rows: u32,
+    /// Seconds a decision's message is kept so feedback on it can be learnt.
+    pub feedback_window_secs: u64,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum AckName {
+    AfterCommit,
+    AfterQueue,
+}
+
+impl Default for AuditConfig {
+    fn default() -> Self {
+        AuditConfig {
+            keep_text: false,
+            ack: AckName::AfterCommit,
+            max_batch_rows: 512,
+            feedback_window_secs: 30 * 24 * 3600,
+        }
+    }
+}
+
+/// When the learner writes checkpoints and how many it keeps.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct LearnerConfig {
+    /// Write a checkpoint after this many learnt feedback rows.
+    pub checkpoint_every_updates: u64,
+    /// ... or after this many seconds with at least one learnt row.
+    pub checkpoint_every_secs: u64,
+    /// Checkpoint files kept; older ones are deleted.
+    pub keep_checkpoints: u32,
+    /// How often the feedback log is checked for rows written elsewhere.
+    pub poll_every_ms: u64,
+}
+
+impl Default for LearnerConfig {
+    fn default() -> Self {
+        LearnerConfig {
+            checkpoint_every_updates: 1000,
+            checkpoint_every_secs: 300,
+            keep_checkpoints: 5,
+            poll_every_ms: 1000,
         }
     }
 }
@@ -240,6 +334,77 @@ impl Config {
                     .iter()
                     .map(|p| p.to_string().replacen("model.", &table, 1)),
             );
+        }
+        let server = &self.server;
+        if let Err(err) = server.listen.parse::<std::net::SocketAddr>() {
+            let listen = &server.listen;
+            problems.push(format!(
+                "server.listen = {listen:?}: must be an address and port such as 127.0.0.1:7300 ({err})"
+            ));
+        }
+        if server.data_dir.as_os_str().is_empty() {
+            problems.push("server.data_dir = \"\": must name a folder".to_owned());
+        }
+        let body = server.max_body_bytes;
+        if !(1024..=1 << 30).contains(&body) {
+            problems.push(format!(
+                "server.max_body_bytes = {body}: must be between 1024 and 1073741824"
+            ));
+        }
+        let batch = server.max_batch;
+        if !(1..=10_000).contains(&batch) {
+            problems.push(format!(
+                "server.max_batch = {batch}: must be between 1 and 10000"
+            ));
+        }
+        let text = server.max_message_bytes;
+        if text == 0 || text > body {
+            problems.push(format!(
+                "server.max_message_bytes = {text}: must be at least 1 and at most server.max_body_bytes ({body})"
+            ));
+        }
+        let reasons = server.reasons;
+        if reasons > 100 {
+            problems.push(format!(
+                "server.reasons = {reasons}: must be between 0 and 100"
+            ));
+        }
+        let rows = self.audit.max_batch_rows;
+        if !(1..=100_000).contains(&rows) {
+            problems.push(format!(
+                "audit.max_batch_rows = {rows}: must be between 1 and 100000"
+            ));
+        }
+        let window = self.audit.feedback_window_secs;
+        if !(1..=10 * 365 * 24 * 3600).contains(&window) {
+            problems.push(format!(
+                "audit.feedback_window_secs = {window}: must be between 1 and 315360000 (ten years)"
+            ));
+        }
+        let learner = &self.learner;
+        let every = learner.checkpoint_every_updates;
+        if every == 0 {
+            problems.push(format!(
+                "learner.checkpoint_every_updates = {every}: must be at least 1"
+            ));
+        }
+        let secs = learner.checkpoint_every_secs;
+        if secs == 0 {
+            problems.push(format!(
+                "learner.checkpoint_every_secs = {secs}: must be at least 1"
+            ));
+        }
+        let keep = learner.keep_checkpoints;
+        if !(1..=1000).contains(&keep) {
+            problems.push(format!(
+                "learner.keep_checkpoints = {keep}: must be between 1 and 1000"
+            ));
+        }
+        let poll = learner.poll_every_ms;
+        if !(10..=3_600_000).contains(&poll) {
+            problems.push(format!(
+                "learner.poll_every_ms = {poll}: must be between 10 and 3600000"
+            ));
         }
         if !self.channels.contains_key(DEFAULT_CHANNEL) {
             problems.push(format!(

@@ -8,8 +8,10 @@ mod config;
 mod corpus;
 mod eval;
 mod pipeline;
+mod rebuild;
+mod serve;
 
-use std::io::Read;
+use std::io::{IsTerminal, Read};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -52,6 +54,33 @@ enum Command {
     Eval(EvalArgs),
     /// Score one message (JSON on stdin) with a model file.
     Score(ScoreArgs),
+    /// Run the daemon: HTTP scoring with an audit log in SQLite.
+    Serve(ServeArgs),
+    /// Replay the whole feedback log into a fresh model.
+    Rebuild(RebuildArgs),
+}
+
+#[derive(Args)]
+struct RebuildArgs {
+    /// Where to write the rebuilt model.
+    #[arg(long, value_name = "MODEL")]
+    out: PathBuf,
+}
+
+#[derive(Args)]
+struct ServeArgs {
+    /// Start from this model file instead of the newest checkpoint.
+    #[arg(long, value_name = "MODEL")]
+    model: Option<PathBuf>,
+    /// Log format on stderr.
+    #[arg(long, value_enum, default_value_t = LogFormat::Text)]
+    log_format: LogFormat,
+}
+
+#[derive(Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+enum LogFormat {
+    Text,
+    Json,
 }
 
 #[derive(Args)]
@@ -137,6 +166,38 @@ fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Train(args) => train(&config, args),
         Command::Eval(args) => evaluate(&config, args),
         Command::Score(args) => score(&config, args),
+        Command::Serve(args) => serve(&config, args),
+        Command::Rebuild(args) => runtime()?.block_on(rebuild::run(
+            &config,
+            rebuild::RebuildOptions { out: args.out },
+        )),
+    }
+}
+
+fn runtime() -> anyhow::Result<tokio::runtime::Runtime> {
+    tokio::runtime::Builder::new_multi_thread()
+        .enable_all()
+        .build()
+        .context("starting the async runtime")
+}
+
+fn serve(config: &Config, args: ServeArgs) -> anyhow::Result<()> {
+    init_logging(args.log_format);
+    let options = serve::ServeOptions { model: args.model };
+    runtime()?.block_on(serve::run(config, options))
+}
+
+/// Logs to stderr; `RUST_LOG` picks the level (default `info`).
+fn init_logging(format: LogFormat) {
+    let filter = tracing_subscriber::EnvFilter::try_from_default_env()
+        .unwrap_or_else(|_| tracing_subscriber::EnvFilter::new("info"));
+    let builder = tracing_subscriber::fmt()
+        .with_env_filter(filter)
+        .with_ansi(std::io::stderr().is_terminal())
+        .with_writer(std::io::stderr);
+    match format {
+        LogFormat::Text => builder.init(),
+        LogFormat::Json => builder.json().init(),
     }
 }
 

@@ -2,16 +2,16 @@
 //!
 //! Joins the text crate's extractor to the model and owns the reusable
 //! feature buffer, so that scoring and learning allocate nothing per message
-//! once warm. Also the only place that reads and writes model files, since a
-//! model is useless without the hash key and feature settings it was
-//! trained with: both travel in the checkpoint header.
+//! once warm. Model files (weights with their hash key and feature settings)
+//! are read and written by `chaffgate_server::model_file`.
 
 use std::path::Path;
 
-use anyhow::{Context, bail};
-use chaffgate_model::{CheckpointHeader, Model, UpdateRule, read_checkpoint, write_checkpoint};
+use anyhow::Context;
+use chaffgate_model::{Model, UpdateRule};
+use chaffgate_server::judge::{Reason, name_contributions};
+use chaffgate_server::model_file::{load_model_file, save_model_file};
 use chaffgate_text::{Extractor, FeatureSettings, Features, HashKey, Message};
-use serde::Serialize;
 
 pub struct Pipeline {
     extractor: Extractor,
@@ -19,14 +19,6 @@ pub struct Pipeline {
     key: HashKey,
     features: Features,
     last_seq: u64,
-}
-
-/// A feature that pushed `p_junk`, with its readable name and signed
-/// contribution to the margin `w . x`.
-#[derive(Debug, Clone, Serialize)]
-pub struct Reason {
-    pub feature: String,
-    pub contribution: f64,
 }
 
 impl Pipeline {
@@ -68,76 +60,32 @@ impl Pipeline {
     pub fn reasons(&mut self, message: &Message, limit: usize) -> Vec<Reason> {
         self.extractor.extract(message, &mut self.features);
         let top = self.model.explain(self.features.as_slice(), limit);
-        let named = self.extractor.extract_named(message);
-        top.into_iter()
-            .map(|contribution| {
-                let names: Vec<&str> = named
-                    .iter()
-                    .filter(|n| n.index == contribution.index)
-                    .map(|n| n.name.as_str())
-                    .collect();
-                let feature = if names.is_empty() {
-                    format!("slot {}", contribution.index)
-                } else {
-                    names.join(" | ")
-                };
-                Reason {
-                    feature,
-                    contribution: contribution.contribution,
-                }
-            })
-            .collect()
+        name_contributions(&mut self.extractor, message, &top)
     }
 
     /// Writes the model with its hash key and feature settings.
     pub fn save(&self, path: &Path) -> anyhow::Result<()> {
-        let extractor = serde_json::to_string(self.extractor.settings())
-            .context("encoding feature settings")?;
-        let header = CheckpointHeader {
-            key_id: self.key.key_id(),
-            hash_key: *self.key.as_bytes(),
-            last_seq: self.last_seq,
-            extractor,
-        };
-        write_checkpoint(path, &self.model, &header)
-            .with_context(|| format!("writing model {}", path.display()))
+        let last_seq = i64::try_from(self.last_seq).unwrap_or(i64::MAX);
+        save_model_file(
+            path,
+            &self.model,
+            self.extractor.settings(),
+            &self.key,
+            last_seq,
+        )
+        .with_context(|| format!("writing model {}", path.display()))
     }
 
     /// Reads a model written by [`Pipeline::save`].
     pub fn open(path: &Path) -> anyhow::Result<Self> {
-        let (model, header) =
-            read_checkpoint(path).with_context(|| format!("loading model {}", path.display()))?;
-        let settings: FeatureSettings = serde_json::from_str(&header.extractor)
-            .with_context(|| format!("reading feature settings in model {}", path.display()))?;
-        if let Err(problems) = settings.validate() {
-            let list: Vec<String> = problems.iter().map(|p| p.to_string()).collect();
-            bail!(
-                "model {} has invalid feature settings: {}",
-                path.display(),
-                list.join("; ")
-            );
-        }
-        if settings.bits != model.bits() {
-            bail!(
-                "model {} is inconsistent: features use {} bits, weights {}",
-                path.display(),
-                settings.bits,
-                model.bits()
-            );
-        }
-        let key = HashKey::from_bytes(header.hash_key);
-        if key.key_id() != header.key_id {
-            bail!(
-                "model {} is inconsistent: its hash key does not match its key id",
-                path.display()
-            );
-        }
+        let loaded = load_model_file(path)?;
+        let last_seq = u64::try_from(loaded.last_seq).unwrap_or(0);
         Ok(Pipeline {
-            extractor: Extractor::new(settings, key.clone()),
-            model,
-            key,
+            extractor: Extractor::new(loaded.settings, loaded.key.clone()),
+            model: loaded.model,
+            key: loaded.key,
             features: Features::default(),
-            last_seq: header.last_seq,
+            last_seq,
         })
     }
 }

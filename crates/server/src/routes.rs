@@ -1,0 +1,600 @@
+//! The HTTP routes: scoring and reading decisions, health.
+
+use std::collections::BTreeMap;
+use std::time::Instant;
+
+use axum::extract::State;
+use axum::http::StatusCode;
+use axum::response::{IntoResponse, Response};
+use chaffgate_store::{
+    DecisionFilter, DecisionId, DecisionInput, DecisionRow, NewDecision, Verdict,
+};
+use chaffgate_text::{Message, MetaValue};
+use serde::{Deserialize, Serialize};
+use tokio::sync::oneshot;
+
+use crate::audit::AuditJob;
+use crate::error::{ApiError, ApiJson, ApiPath, ApiQuery};
+use crate::judge::Reason;
+use crate::settings::AckMode;
+use crate::state::{AppState, now_ms};
+
+/// One message to score, as clients send it.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ScoreRequest {
+    subject: Option<String>,
+    body: Option<String>,
+    sender: Option<String>,
+    channel: Option<String>,
+    #[serde(default)]
+    meta: BTreeMap<String, MetaValue>,
+    /// The caller's own reference, stored with the decision.
+    client_ref: Option<String>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct BatchRequest {
+    messages: Vec<ScoreRequest>,
+}
+
+/// The answer for one scored message.
+#[derive(Debug, Serialize)]
+pub struct DecisionAnswer {
+    decision_id: String,
+    p_junk: f64,
+    verdict: &'static str,
+    channel: String,
+    reasons: Vec<Reason>,
+    model_seq: i64,
+}
+
+#[derive(Debug, Serialize)]
+pub struct BatchAnswer {
+    decisions: Vec<DecisionAnswer>,
+}
+
+impl ScoreRequest {
+    fn into_parts(self) -> (Message, Option<String>) {
+        let message = Message {
+            subject: self.subject,
+            body: self.body,
+            sender: self.sender,
+            channel: self.channel,
+            meta: self.meta,
+        };
+        (message, self.client_ref)
+    }
+}
+
+/// Bytes of text in a message, meta keys and text values included.
+fn message_bytes(message: &Message) -> usize {
+    let fields = [
+        &message.subject,
+        &message.body,
+        &message.sender,
+        &message.channel,
+    ]
+    .into_iter()
+    .flatten()
+    .map(String::len)
+    .sum::<usize>();
+    let meta = message
+        .meta
+        .iter()
+        .map(|(key, value)| {
+            key.len()
+                + match value {
+                    MetaValue::Text(text) => text.len(),
+                    _ => 8,
+                }
+        })
+        .sum::<usize>();
+    fields + meta
+}
+
+fn check_message(state: &AppState, message: &Message) -> Result<(), ApiError> {
+    if message.is_empty() {
+        return Err(ApiError::EmptyMessage);
+    }
+    let bytes = message_bytes(message);
+    let limit = state.settings().max_message_bytes;
+    if bytes > limit {
+        return Err(ApiError::MessageTooLarge { bytes, limit });
+    }
+    Ok(())
+}
+
+/// Reports the commit of one decision row (`after_commit` mode).
+type CommittedRx = oneshot::Receiver<Result<(), String>>;
+
+/// Scores one checked message and builds its decision row. Returns the
+/// answer, the row's job for the audit writer and, in `after_commit` mode,
+/// the receiver to await.
+fn decide(
+    state: &AppState,
+    message: Message,
+    client_ref: Option<String>,
+    started: Instant,
+) -> Result<(DecisionAnswer, AuditJob, Option<CommittedRx>), ApiError> {
+    let settings = state.settings();
+    let judgement = state.judge().judge(&message, settings.reasons);
+    let (channel, thresholds) = settings.channels.resolve(message.channel.as_deref());
+    let channel = channel.to_owned();
+    let verdict = thresholds.verdict(judgement.p_junk);
+    let id = state.next_decision_id();
+    let created_at_ms = now_ms();
+    let message_json = serde_json::to_string(&message).map_err(ApiError::internal)?;
+    let reasons_json = serde_json::to_string(&judgement.reasons).map_err(ApiError::internal)?;
+    let window_ms = i64::try_from(settings.audit.feedback_window.as_millis()).unwrap_or(i64::MAX);
+    let latency_us = i64::try_from(started.elapsed().as_micros()).unwrap_or(i64::MAX);
+    let row = NewDecision {
+        id: DecisionId::new(id.clone()),
+        created_at_ms,
+        channel: channel.clone(),
+        client_ref,
+        content_sha256: judgement.content_sha256,
+        content: settings.audit.keep_text.then(|| message_json.clone()),
+        p_junk: judgement.p_junk,
+        verdict,
+        model_seq: chaffgate_store::FeedbackSeq(judgement.model_seq),
+        reasons_json,
+        latency_us,
+        input: Some(DecisionInput {
+            message_json,
+            expires_at_ms: created_at_ms.saturating_add(window_ms),
+        }),
+    };
+    let (committed_tx, committed_rx) = match settings.audit.ack {
+        AckMode::AfterCommit => {
+            let (tx, rx) = oneshot::channel();
+            (Some(tx), Some(rx))
+        }
+        AckMode::AfterQueue => (None, None),
+    };
+    state.metrics().count_verdict(verdict);
+    let answer = DecisionAnswer {
+        decision_id: id,
+        p_junk: judgement.p_junk,
+        verdict: verdict.as_str(),
+        channel,
+        reasons: judgement.reasons,
+        model_seq: judgement.model_seq,
+    };
+    Ok((answer, AuditJob { row, committed_tx }, committed_rx))
+}
+
+/// Hands rows to the audit writer and, when asked to, waits for commit.
+async fn record(
+    state: &AppState,
+    jobs: Vec<AuditJob>,
+    receivers: Vec<CommittedRx>,
+) -> Result<(), ApiError> {
+    for job in jobs {
+        state
+            .audit_tx()
+            .send(job)
+            .await
+            .map_err(|_| ApiError::Unavailable)?;
+    }
+    for receiver in receivers {
+        match receiver.await {
+            Ok(Ok(())) => {}
+            Ok(Err(message)) => return Err(ApiError::internal(StorageFailure(message))),
+            Err(_) => return Err(ApiError::Unavailable),
+        }
+    }
+    Ok(())
+}
+
+#[derive(Debug, thiserror::Error)]
+#[error("the audit log could not commit: {0}")]
+struct StorageFailure(String);
+
+/// `POST /v1/score`
+pub async fn score(
+    State(state): State<AppState>,
+    ApiJson(request): ApiJson<ScoreRequest>,
+) -> Result<ApiJson<DecisionAnswer>, ApiError> {
+    let started = Instant::now();
+    let (message, client_ref) = request.into_parts();
+    check_message(&state, &message)?;
+    let (answer, job, receiver) = decide(&state, message, client_ref, started)?;
+    record(&state, vec![job], receiver.into_iter().collect()).await?;
+    Ok(ApiJson(answer))
+}
+
+/// `POST /v1/score/batch`
+pub async fn score_batch(
+    State(state): State<AppState>,
+    ApiJson(request): ApiJson<BatchRequest>,
+) -> Result<ApiJson<BatchAnswer>, ApiError> {
+    let started = Instant::now();
+    let limit = state.settings().max_batch;
+    let count = request.messages.len();
+    if count == 0 || count > limit {
+        return Err(ApiError::BatchSize { count, limit });
+    }
+    let mut parts = Vec::with_capacity(count);
+    for (position, request) in request.messages.into_iter().enumerate() {
+        let (message, client_ref) = request.into_parts();
+        check_message(&state, &message).map_err(|err| match err {
+            ApiError::EmptyMessage => ApiError::InvalidParameter(format!(
+                "messages[{position}] is empty: give at least one of subject, body, sender or meta"
+            )),
+            other => other,
+        })?;
+        parts.push((message, client_ref));
+    }
+    let mut decisions = Vec::with_capacity(count);
+    let mut jobs = Vec::with_capacity(count);
+    let mut receivers = Vec::with_capacity(count);
+    for (message, client_ref) in parts {
+        let (answer, job, receiver) = decide(&state, message, client_ref, started)?;
+        decisions.push(answer);
+        jobs.push(job);
+        receivers.extend(receiver);
+    }
+    record(&state, jobs, receivers).await?;
+    Ok(ApiJson(BatchAnswer { decisions }))
+}
+
+/// A decision as the API shows it.
+#[derive(Debug, Serialize)]
+pub struct DecisionView {
+    decision_id: String,
+    created_at_ms: i64,
+    channel: String,
+    client_ref: Option<String>,
+    content_sha256: String,
+    /// The message, only when the operator keeps text (`audit.keep_text`).
+    content: Option<serde_json::Value>,
+    p_junk: f64,
+    verdict: &'static str,
+    model_seq: i64,
+    reasons: serde_json::Value,
+    latency_us: i64,
+    /// Until when feedback on this decision is accepted (null: no longer).
+    feedback_until_ms: Option<i64>,
+}
+
+impl From<DecisionRow> for DecisionView {
+    fn from(row: DecisionRow) -> DecisionView {
+        DecisionView {
+            decision_id: row.id.as_str().to_owned(),
+            created_at_ms: row.created_at_ms,
+            channel: row.channel,
+            client_ref: row.client_ref,
+            content_sha256: row.content_sha256,
+            content: row
+                .content
+                .as_deref()
+                .and_then(|text| serde_json::from_str(text).ok()),
+            p_junk: row.p_junk,
+            verdict: row.verdict.as_str(),
+            model_seq: row.model_seq.0,
+            reasons: serde_json::from_str(&row.reasons_json).unwrap_or(serde_json::Value::Null),
+            latency_us: row.latency_us,
+            feedback_until_ms: row.input_expires_at_ms,
+        }
+    }
+}
+
+/// `GET /v1/decisions/{id}`
+pub async fn decision(
+    State(state): State<AppState>,
+    ApiPath(id): ApiPath<String>,
+) -> Result<ApiJson<DecisionView>, ApiError> {
+    if !DecisionId::is_well_formed(&id) {
+        return Err(ApiError::InvalidParameter(format!(
+            "{id:?} is not a decision id (26 characters of Crockford base 32)"
+        )));
+    }
+    match state.store().decision(&DecisionId::new(id.clone())).await? {
+        Some(row) => Ok(ApiJson(row.into())),
+        None => Err(ApiError::UnknownDecision(id)),
+    }
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DecisionQuery {
+    /// Milliseconds since the Unix epoch, inclusive.
+    since: Option<i64>,
+    /// Milliseconds since the Unix epoch, exclusive.
+    until: Option<i64>,
+    verdict: Option<String>,
+    channel: Option<String>,
+    limit: Option<u32>,
+    cursor: Option<String>,
+}
+
+#[derive(Debug, Serialize)]
+pub struct DecisionList {
+    decisions: Vec<DecisionView>,
+    /// Pass as `cursor` to get the next page; null on the last page.
+    next_cursor: Option<String>,
+}
+
+/// `GET /v1/decisions?since=&until=&verdict=&channel=&limit=&cursor=`,
+/// newest first.
+pub async fn decisions(
+    State(state): State<AppState>,
+    ApiQuery(query): ApiQuery<DecisionQuery>,
+) -> Result<ApiJson<DecisionList>, ApiError> {
+    let verdict = match query.verdict.as_deref() {
+        None => None,
+        Some(word) => Some(word.parse::<Verdict>().map_err(|_| {
+            ApiError::InvalidParameter(format!(
+                "verdict={word:?}: must be one of junk, review, fine"
+            ))
+        })?),
+    };
+    let limit = query.limit.unwrap_or(100);
+    let max = chaffgate_store::MAX_PAGE_LIMIT;
+    if limit == 0 || limit > max {
+        return Err(ApiError::InvalidParameter(format!(
+            "limit={limit}: must be between 1 and {max}"
+        )));
+    }
+    let filter = DecisionFilter {
+        since_ms: query.since,
+        until_ms: query.until,
+        verdict,
+        channel: query.channel,
+        limit,
+        cursor: query.cursor,
+    };
+    let page = match state.store().list_decisions(&filter).await {
+        Ok(page) => page,
+        Err(chaffgate_store::StoreError::BadCursor { cursor }) => {
+            return Err(ApiError::InvalidParameter(format!(
+                "cursor={cursor:?} is not a cursor this service gave out"
+            )));
+        }
+        Err(err) => return Err(err.into()),
+    };
+    Ok(ApiJson(DecisionList {
+        decisions: page.rows.into_iter().map(DecisionView::from).collect(),
+        next_cursor: page.next_cursor,
+    }))
+}
+
+/// `GET /healthz`: the process is up.
+pub async fn healthz() -> Response {
+    (StatusCode::OK, "ok\n").into_response()
+}
+
+/// `GET /readyz`: the model is loaded and the feedback log replayed.
+pub async fn readyz(State(state): State<AppState>) -> Response {
+    if state.is_ready() {
+        (StatusCode::OK, "ready\n").into_response()
+    } else {
+        ApiError::Unavailable.into_response()
+    }
+}
+
+/// Any route that does not exist.
+pub async fn not_found() -> Response {
+    let body = serde_json::json!({
+        "error": { "code": "not_found", "message": "no such route" }
+    });
+    (StatusCode::NOT_FOUND, axum::Json(body)).into_response()
+}
+
+/// Feedback as moderators send it: about a decision or an inline message.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct FeedbackRequest {
+    decision_id: Option<String>,
+    message: Option<Message>,
+    label: String,
+    moderator: Option<String>,
+    note: Option<String>,
+    idempotency_key: Option<String>,
+}
+
+#[derive(Debug, Serialize)]
+pub struct FeedbackAnswer {
+    seq: i64,
+    /// `recorded`, `correction` (a changed label for the same decision) or
+    /// `duplicate` (already recorded; nothing new is learnt).
+    outcome: &'static str,
+    /// The label a correction replaced.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    previous_label: Option<&'static str>,
+}
+
+/// Longest moderator name, note and idempotency key accepted.
+const MAX_FEEDBACK_FIELD_BYTES: usize = 4096;
+
+/// `POST /v1/feedback`: 201 with the sequence number once the row is
+/// committed; 200 for a repeat.
+pub async fn feedback(
+    State(state): State<AppState>,
+    ApiJson(request): ApiJson<FeedbackRequest>,
+) -> Result<Response, ApiError> {
+    use chaffgate_store::{FeedbackOutcome, FeedbackTarget, Label, NewFeedback};
+
+    let label: Label = request.label.parse().map_err(|_| {
+        ApiError::InvalidFeedback(format!(
+            "label {:?} is not one of junk, fine",
+            request.label
+        ))
+    })?;
+    let moderator = request.moderator.unwrap_or_default();
+    if moderator.trim().is_empty() {
+        return Err(ApiError::InvalidFeedback(
+            "moderator is required: who gave this label".to_owned(),
+        ));
+    }
+    for (name, value) in [
+        ("moderator", Some(&moderator)),
+        ("note", request.note.as_ref()),
+        ("idempotency_key", request.idempotency_key.as_ref()),
+    ] {
+        if value.is_some_and(|v| v.len() > MAX_FEEDBACK_FIELD_BYTES) {
+            return Err(ApiError::InvalidFeedback(format!(
+                "{name} is longer than {MAX_FEEDBACK_FIELD_BYTES} bytes"
+            )));
+        }
+    }
+    let target = match (request.decision_id, request.message) {
+        (Some(id), None) => {
+            if !DecisionId::is_well_formed(&id) {
+                return Err(ApiError::InvalidFeedback(format!(
+                    "decision_id {id:?} is not a decision id (26 characters of Crockford base 32)"
+                )));
+            }
+            FeedbackTarget::Decision(DecisionId::new(id))
+        }
+        (None, Some(message)) => {
+            check_message(&state, &message)?;
+            let message_json = serde_json::to_string(&message).map_err(ApiError::internal)?;
+            FeedbackTarget::Inline { message_json }
+        }
+        (Some(_), Some(_)) => {
+            return Err(ApiError::InvalidFeedback(
+                "give either decision_id or message, not both".to_owned(),
+            ));
+        }
+        (None, None) => {
+            return Err(ApiError::InvalidFeedback(
+                "give decision_id (feedback on a decision) or message (an inline message)"
+                    .to_owned(),
+            ));
+        }
+    };
+    let new = NewFeedback {
+        target,
+        label,
+        moderator,
+        note: request.note,
+        idempotency_key: request.idempotency_key,
+    };
+    let outcome = state.store().append_feedback(&new, now_ms()).await?;
+    let (status, answer) = match outcome {
+        FeedbackOutcome::Inserted { seq } => (
+            StatusCode::CREATED,
+            FeedbackAnswer {
+                seq: seq.0,
+                outcome: "recorded",
+                previous_label: None,
+            },
+        ),
+        FeedbackOutcome::Correction {
+            seq,
+            previous_label,
+        } => (
+            StatusCode::CREATED,
+            FeedbackAnswer {
+                seq: seq.0,
+                outcome: "correction",
+                previous_label: Some(previous_label.as_str()),
+            },
+        ),
+        FeedbackOutcome::Duplicate { seq } => (
+            StatusCode::OK,
+            FeedbackAnswer {
+                seq: seq.0,
+                outcome: "duplicate",
+                previous_label: None,
+            },
+        ),
+    };
+    if status == StatusCode::CREATED {
+        state.metrics().count_feedback(label);
+        state.wake_learner();
+    }
+    Ok((status, axum::Json(answer)).into_response())
+}
+
+#[derive(Debug, Serialize)]
+pub struct WeightView {
+    feature: String,
+    weight: f64,
+}
+
+#[derive(Debug, Serialize)]
+pub struct CheckpointView {
+    id: i64,
+    file_name: String,
+    created_at_ms: i64,
+    last_seq: i64,
+    examples_seen: i64,
+    reason: String,
+}
+
+#[derive(Debug, Serialize)]
+pub struct ModelView {
+    update_rule: chaffgate_model::UpdateRule,
+    bits: u8,
+    key_id: String,
+    examples_seen: u64,
+    /// The last feedback row the model scoring now includes.
+    model_seq: i64,
+    /// The last feedback row committed to the log.
+    committed_seq: i64,
+    /// Committed rows the model does not include yet.
+    learner_lag_rows: i64,
+    /// How long the oldest of those has waited, in milliseconds.
+    learner_lag_ms: i64,
+    is_caught_up: bool,
+    checkpoints: Vec<CheckpointView>,
+    top_junk: Vec<WeightView>,
+    top_fine: Vec<WeightView>,
+}
+
+/// `GET /v1/model`
+pub async fn model(State(state): State<AppState>) -> Result<ApiJson<ModelView>, ApiError> {
+    let snapshot = state.judge().snapshot();
+    let committed_seq = state.store().last_feedback_seq().await?.0;
+    let model_seq = snapshot.model_seq;
+    let learner_lag_rows = (committed_seq - model_seq).max(0);
+    let learner_lag_ms = if learner_lag_rows > 0 {
+        let next = chaffgate_store::FeedbackSeq(model_seq + 1);
+        match state.store().feedback(next).await? {
+            Some(row) => (now_ms() - row.created_at_ms).max(0),
+            None => 0,
+        }
+    } else {
+        0
+    };
+    let checkpoints = state
+        .store()
+        .list_checkpoints()
+        .await?
+        .into_iter()
+        .map(|row| CheckpointView {
+            id: row.id,
+            file_name: row.file_name,
+            created_at_ms: row.created_at_ms,
+            last_seq: row.last_seq.0,
+            examples_seen: row.examples_seen,
+            reason: row.reason,
+        })
+        .collect();
+    let (top_junk, top_fine) = snapshot.model.top_weights(10);
+    let name = |(index, weight): (u32, f64)| WeightView {
+        feature: state
+            .learner()
+            .name_of(index)
+            .unwrap_or_else(|| format!("slot {index}")),
+        weight,
+    };
+    Ok(ApiJson(ModelView {
+        update_rule: snapshot.model.rule(),
+        bits: snapshot.model.bits(),
+        key_id: format!("{:016x}", state.judge().key().key_id()),
+        examples_seen: snapshot.model.examples_seen(),
+        model_seq,
+        committed_seq,
+        learner_lag_rows,
+        learner_lag_ms,
+        is_caught_up: state.learner().is_caught_up(),
+        checkpoints,
+        top_junk: top_junk.into_iter().map(name).collect(),
+        top_fine: top_fine.into_iter().map(name).collect(),
+    }))
+}

@@ -1,0 +1,100 @@
+//! `AppState`: what every handler can reach. Cheap to clone (one `Arc`).
+
+use std::sync::Arc;
+use std::time::{SystemTime, UNIX_EPOCH};
+
+use chaffgate_store::Store;
+use tokio::sync::mpsc;
+
+use crate::audit::AuditJob;
+use crate::judge::Judge;
+use crate::learner::LearnerStatus;
+use crate::metrics::Metrics;
+use crate::settings::ServerSettings;
+
+#[derive(Clone)]
+pub struct AppState {
+    inner: Arc<Inner>,
+}
+
+struct Inner {
+    settings: ServerSettings,
+    judge: Arc<Judge>,
+    store: Store,
+    audit_tx: mpsc::Sender<AuditJob>,
+    metrics: Arc<Metrics>,
+    learner: Arc<LearnerStatus>,
+    wake_learner_tx: mpsc::Sender<()>,
+}
+
+impl AppState {
+    pub fn new(
+        settings: ServerSettings,
+        judge: Arc<Judge>,
+        store: Store,
+        audit_tx: mpsc::Sender<AuditJob>,
+        metrics: Arc<Metrics>,
+        learner: Arc<LearnerStatus>,
+        wake_learner_tx: mpsc::Sender<()>,
+    ) -> AppState {
+        AppState {
+            inner: Arc::new(Inner {
+                settings,
+                judge,
+                store,
+                audit_tx,
+                metrics,
+                learner,
+                wake_learner_tx,
+            }),
+        }
+    }
+
+    pub fn settings(&self) -> &ServerSettings {
+        &self.inner.settings
+    }
+
+    pub fn judge(&self) -> &Judge {
+        &self.inner.judge
+    }
+
+    pub fn store(&self) -> &Store {
+        &self.inner.store
+    }
+
+    pub fn audit_tx(&self) -> &mpsc::Sender<AuditJob> {
+        &self.inner.audit_tx
+    }
+
+    pub fn metrics(&self) -> &Metrics {
+        &self.inner.metrics
+    }
+
+    /// Ready once the learner has replayed the feedback log.
+    pub fn is_ready(&self) -> bool {
+        self.inner.learner.is_caught_up()
+    }
+
+    pub fn learner(&self) -> &LearnerStatus {
+        &self.inner.learner
+    }
+
+    /// Tells the learner a feedback row was committed. A wake-up already
+    /// pending covers this one too.
+    pub fn wake_learner(&self) {
+        let _ = self.inner.wake_learner_tx.try_send(());
+    }
+
+    /// A new time-ordered decision id (a ULID).
+    pub fn next_decision_id(&self) -> String {
+        ulid::Ulid::new().to_string()
+    }
+}
+
+/// Milliseconds since the Unix epoch (0 if the clock is before it).
+pub fn now_ms() -> i64 {
+    SystemTime::now()
+        .duration_since(UNIX_EPOCH)
+        .map(|d| i64::try_from(d.as_millis()).unwrap_or(i64::MAX))
+        .unwrap_or(0)
+}

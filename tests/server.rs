@@ -1,0 +1,306 @@
+//! The daemon end to end: the real binary on a loopback port with its own
+//! SQLite file.
+
+use serde_json::{Value, json};
+
+use crate::util::{TestServer, chaffgate, stdout};
+
+const JUNK: &str = r#"{"subject":"Claim your prize now","body":"You were selected for a 5000 EUR reward, click http://lucky-draw.example.net to claim","sender":"promo@lucky-draw.example.net"}"#;
+const FINE: &str = r#"{"subject":"Order 4411","body":"Hello, my glazed mugs have not arrived yet, could you check the tracking?","sender":"ines@customer.example.org"}"#;
+
+fn p_junk(answer: &Value) -> f64 {
+    answer["p_junk"]
+        .as_f64()
+        .unwrap_or_else(|| panic!("no p_junk in {answer}"))
+}
+
+fn feedback(server: &TestServer, decision_id: &str, label: &str) -> (u16, Value) {
+    let body = json!({"decision_id": decision_id, "label": label, "moderator": "ana"});
+    server.post("/v1/feedback", &body.to_string())
+}
+
+/// Waits until the model includes every committed feedback row.
+fn wait_learnt(server: &TestServer) -> Value {
+    for _ in 0..500 {
+        let (status, model) = server.get("/v1/model");
+        assert_eq!(status, 200, "{model}");
+        if model["learner_lag_rows"] == 0 {
+            return model;
+        }
+        std::thread::sleep(std::time::Duration::from_millis(10));
+    }
+    panic!("the learner never caught up");
+}
+
+#[test]
+fn score_feedback_score_again_moves_p_junk_the_right_way() {
+    let dir = tempfile::tempdir().unwrap();
+    let server = TestServer::start_in(dir.path(), &[]);
+    let (status, first) = server.post("/v1/score", JUNK);
+    assert_eq!(status, 200, "{first}");
+    // An empty model gives sigma(0) = 1/2 (common practice, no source), and
+    // the default thresholds put that in the review band.
+    assert_eq!(p_junk(&first), 0.5);
+    assert_eq!(first["verdict"], "review");
+    assert_eq!(first["model_seq"], 0);
+    let id = first["decision_id"].as_str().unwrap().to_owned();
+    assert_eq!(id.len(), 26);
+
+    let (status, answer) = feedback(&server, &id, "junk");
+    assert_eq!(status, 201, "{answer}");
+    assert_eq!(answer["seq"], 1);
+    let (status, fine) = server.post("/v1/score", FINE);
+    assert_eq!(status, 200);
+    let fine_id = fine["decision_id"].as_str().unwrap().to_owned();
+    assert_eq!(feedback(&server, &fine_id, "fine").0, 201);
+    let model = wait_learnt(&server);
+    assert_eq!(model["model_seq"], 2);
+    assert_eq!(model["examples_seen"], 2);
+
+    let (_, again) = server.post("/v1/score", JUNK);
+    let (_, fine_again) = server.post("/v1/score", FINE);
+    assert!(p_junk(&again) > 0.5, "{again}");
+    assert!(p_junk(&fine_again) < 0.5, "{fine_again}");
+    assert_eq!(again["model_seq"], 2);
+    let reasons = again["reasons"].as_array().unwrap();
+    assert!(!reasons.is_empty());
+    assert!(reasons[0]["contribution"].as_f64().unwrap() > 0.0);
+
+    // The decision is in the audit log, with a digest but no text by default.
+    let (status, stored) = server.get(&format!("/v1/decisions/{id}"));
+    assert_eq!(status, 200, "{stored}");
+    assert_eq!(stored["verdict"], "review");
+    assert_eq!(stored["content"], Value::Null);
+    assert_eq!(stored["content_sha256"].as_str().unwrap().len(), 64);
+    let (status, list) = server.get("/v1/decisions?limit=3");
+    assert_eq!(status, 200);
+    assert_eq!(list["decisions"].as_array().unwrap().len(), 3);
+    let cursor = list["next_cursor"].as_str().unwrap();
+    let (_, rest) = server.get(&format!("/v1/decisions?limit=3&cursor={cursor}"));
+    assert_eq!(rest["decisions"].as_array().unwrap().len(), 1);
+    assert_eq!(rest["next_cursor"], Value::Null);
+    assert!(server.stop(), "clean exit");
+}
+
+#[test]
+fn repeated_and_corrected_feedback_are_told_apart() {
+    let dir = tempfile::tempdir().unwrap();
+    let server = TestServer::start_in(dir.path(), &[]);
+    let (_, decision) = server.post("/v1/score", JUNK);
+    let id = decision["decision_id"].as_str().unwrap();
+    assert_eq!(
+        feedback(&server, id, "junk"),
+        (201, json!({"seq": 1, "outcome": "recorded"}))
+    );
+    assert_eq!(
+        feedback(&server, id, "junk"),
+        (200, json!({"seq": 1, "outcome": "duplicate"}))
+    );
+    assert_eq!(
+        feedback(&server, id, "fine"),
+        (
+            201,
+            json!({"seq": 2, "outcome": "correction", "previous_label": "junk"})
+        )
+    );
+    let keyed = json!({"message": {"body": "cheap watches"}, "label": "junk",
+                       "moderator": "bo", "idempotency_key": "k-1"})
+    .to_string();
+    assert_eq!(server.post("/v1/feedback", &keyed).0, 201);
+    let (status, repeat) = server.post("/v1/feedback", &keyed);
+    assert_eq!((status, repeat["seq"].as_i64()), (200, Some(3)));
+    let reused = json!({"message": {"body": "other"}, "label": "fine",
+                        "moderator": "bo", "idempotency_key": "k-1"})
+    .to_string();
+    let (status, err) = server.post("/v1/feedback", &reused);
+    assert_eq!(
+        (status, err["error"]["code"].as_str()),
+        (409, Some("idempotency_key_reused"))
+    );
+    let model = wait_learnt(&server);
+    assert_eq!(model["examples_seen"], 3);
+}
+
+#[test]
+fn client_mistakes_get_4xx_with_stable_codes() {
+    let dir = tempfile::tempdir().unwrap();
+    let server = TestServer::start_in(
+        dir.path(),
+        &[
+            ("CHAFFGATE_SERVER_MAX_BODY_BYTES", "4096"),
+            ("CHAFFGATE_SERVER_MAX_MESSAGE_BYTES", "1000"),
+            ("CHAFFGATE_SERVER_MAX_BATCH", "2"),
+        ],
+    );
+    let long_body = json!({"body": "x".repeat(2000)}).to_string();
+    let huge = json!({"body": "x".repeat(10_000)}).to_string();
+    let cases: Vec<(&str, String, u16, &str)> = vec![
+        ("/v1/score", "not json".into(), 400, "invalid_json"),
+        ("/v1/score", r#"{"bdy":"x"}"#.into(), 400, "invalid_json"),
+        ("/v1/score", r#"{"body":5}"#.into(), 400, "invalid_json"),
+        ("/v1/score", "{}".into(), 422, "empty_message"),
+        ("/v1/score", long_body, 413, "message_too_large"),
+        ("/v1/score", huge, 413, "body_too_large"),
+        (
+            "/v1/score/batch",
+            r#"{"messages":[]}"#.into(),
+            422,
+            "batch_size",
+        ),
+        (
+            "/v1/score/batch",
+            r#"{"messages":[{"body":"a"},{"body":"b"},{"body":"c"}]}"#.into(),
+            422,
+            "batch_size",
+        ),
+        (
+            "/v1/feedback",
+            r#"{"label":"junk","moderator":"a"}"#.into(),
+            422,
+            "invalid_feedback",
+        ),
+        (
+            "/v1/feedback",
+            r#"{"message":{"body":"x"},"label":"spam","moderator":"a"}"#.into(),
+            422,
+            "invalid_feedback",
+        ),
+        (
+            "/v1/feedback",
+            r#"{"message":{"body":"x"},"label":"junk"}"#.into(),
+            422,
+            "invalid_feedback",
+        ),
+        (
+            "/v1/feedback",
+            r#"{"decision_id":"01M8TVPWQTQDAKVCVHFS3X2X6Q","label":"junk","moderator":"a"}"#.into(),
+            404,
+            "unknown_decision",
+        ),
+        (
+            "/v1/feedback",
+            r#"{"decision_id":"nope","label":"junk","moderator":"a"}"#.into(),
+            422,
+            "invalid_feedback",
+        ),
+    ];
+    for (path, body, status, code) in cases {
+        let (got, answer) = server.post(path, &body);
+        assert_eq!(got, status, "{path} {body:.60}: {answer}");
+        assert_eq!(answer["error"]["code"], code, "{path} {body:.60}: {answer}");
+        assert!(answer["error"]["message"].as_str().unwrap().len() > 5);
+    }
+    let (status, answer) = server.post_as("/v1/score", "text/plain", "{}");
+    assert_eq!(
+        (status, answer["error"]["code"].as_str()),
+        (415, Some("unsupported_media_type"))
+    );
+    let invalid_utf8 = server.post("/v1/score", "{\"body\":\"\\ud800\"}");
+    assert_eq!(invalid_utf8.0, 400, "{}", invalid_utf8.1);
+    for (path, status, code) in [
+        (
+            "/v1/decisions/01M8TVPWQTQDAKVCVHFS3X2X6Q",
+            404,
+            "unknown_decision",
+        ),
+        ("/v1/decisions/short", 400, "invalid_parameter"),
+        ("/v1/decisions?verdict=maybe", 400, "invalid_parameter"),
+        ("/v1/decisions?limit=0", 400, "invalid_parameter"),
+        ("/v1/decisions?cursor=garbage", 400, "invalid_parameter"),
+        ("/v1/decisions?colour=red", 400, "invalid_parameter"),
+        ("/v1/nothing", 404, "not_found"),
+    ] {
+        let (got, answer) = server.get(path);
+        assert_eq!(
+            (got, answer["error"]["code"].as_str()),
+            (status, Some(code)),
+            "{path}: {answer}"
+        );
+    }
+    // The server is still fine after all of that.
+    assert_eq!(
+        server
+            .post(
+                "/v1/score/batch",
+                r#"{"messages":[{"body":"a"},{"body":"b"}]}"#
+            )
+            .0,
+        200
+    );
+    assert!(server.stop());
+}
+
+#[test]
+fn feedback_after_the_window_answers_410() {
+    let dir = tempfile::tempdir().unwrap();
+    let server = TestServer::start_in(dir.path(), &[("CHAFFGATE_AUDIT_FEEDBACK_WINDOW_SECS", "1")]);
+    let (_, decision) = server.post("/v1/score", JUNK);
+    let id = decision["decision_id"].as_str().unwrap();
+    std::thread::sleep(std::time::Duration::from_millis(1100));
+    let (status, answer) = feedback(&server, id, "junk");
+    assert_eq!(
+        (status, answer["error"]["code"].as_str()),
+        (410, Some("decision_expired"))
+    );
+}
+
+#[test]
+fn restart_keeps_decisions_feedback_and_the_learnt_model() {
+    let dir = tempfile::tempdir().unwrap();
+    let server = TestServer::start_in(dir.path(), &[]);
+    let (_, decision) = server.post("/v1/score", JUNK);
+    let id = decision["decision_id"].as_str().unwrap().to_owned();
+    assert_eq!(feedback(&server, &id, "junk").0, 201);
+    wait_learnt(&server);
+    let (_, before) = server.post("/v1/score", JUNK);
+    assert!(server.stop());
+
+    let server = TestServer::start_in(dir.path(), &[]);
+    let (_, after) = server.post("/v1/score", JUNK);
+    assert_eq!(
+        p_junk(&after),
+        p_junk(&before),
+        "the same model after restart"
+    );
+    assert_eq!(after["model_seq"], 1);
+    assert_eq!(server.get(&format!("/v1/decisions/{id}")).0, 200);
+    assert_eq!(feedback(&server, &id, "junk").1["outcome"], "duplicate");
+    assert!(server.stop());
+}
+
+#[test]
+fn kill_9_after_acknowledged_feedback_then_restart_equals_rebuild() {
+    let dir = tempfile::tempdir().unwrap();
+    let server = TestServer::start_in(dir.path(), &[]);
+    let mut ids = Vec::new();
+    for i in 0..12 {
+        let body = if i % 3 == 0 { JUNK } else { FINE };
+        let (_, decision) = server.post("/v1/score", body);
+        ids.push((
+            decision["decision_id"].as_str().unwrap().to_owned(),
+            i % 3 == 0,
+        ));
+    }
+    for (id, is_junk) in &ids {
+        let label = if *is_junk { "junk" } else { "fine" };
+        assert_eq!(feedback(&server, id, label).0, 201);
+    }
+    // No time to learn or checkpoint: every acknowledged row must survive.
+    server.kill_hard();
+
+    let server = TestServer::start_in(dir.path(), &[]);
+    let model = wait_learnt(&server);
+    assert_eq!(model["model_seq"], 12);
+    assert!(server.stop(), "clean exit writes a shutdown checkpoint");
+
+    // `rebuild` reads ./data (the default data_dir) in the same folder.
+    let out = chaffgate(dir.path(), &["rebuild", "--out", "rebuilt.cgm"], "");
+    let text = stdout(&out);
+    assert!(
+        out.status.success(),
+        "{text}\n{}",
+        crate::util::stderr(&out)
+    );
+    assert!(text.contains("rebuilt from 12 feedback rows"), "{text}");
+    assert!(text.contains("bit for bit"), "{text}");
+}
