@@ -304,3 +304,95 @@ fn kill_9_after_acknowledged_feedback_then_restart_equals_rebuild() {
     assert!(text.contains("rebuilt from 12 feedback rows"), "{text}");
     assert!(text.contains("bit for bit"), "{text}");
 }
+
+/// Adds a token with `chaffgate token add` in `dir` and returns its secret.
+fn add_token(dir: &std::path::Path, role: &str, name: &str) -> String {
+    let out = chaffgate(dir, &["token", "add", "--role", role, "--name", name], "");
+    assert!(out.status.success(), "{}", crate::util::stderr(&out));
+    let secret = stdout(&out).trim().to_owned();
+    assert_eq!(secret.len(), 64, "{secret}");
+    secret
+}
+
+#[test]
+fn tokens_and_roles_give_distinct_401_and_403() {
+    let dir = tempfile::tempdir().unwrap();
+    let scorer = add_token(dir.path(), "score", "gateway");
+    let moderator = add_token(dir.path(), "moderate", "ana");
+    let operator = add_token(dir.path(), "operate", "ops");
+    let out = chaffgate(
+        dir.path(),
+        &["token", "add", "--role", "score", "--name", "ana"],
+        "",
+    );
+    assert!(!out.status.success(), "duplicate names are refused");
+    let server = TestServer::start_in(dir.path(), &[]);
+
+    let (status, answer) = server.post("/v1/score", JUNK);
+    assert_eq!(
+        (status, answer["error"]["code"].as_str()),
+        (401, Some("unauthenticated"))
+    );
+    let (status, _) = server.post_with("not-a-token", "/v1/score", JUNK);
+    assert_eq!(status, 401);
+    let (status, decision) = server.post_with(&scorer, "/v1/score", JUNK);
+    assert_eq!(status, 200, "{decision}");
+    let id = decision["decision_id"].as_str().unwrap();
+
+    // A scorer may not give feedback or read decisions or the model.
+    let body = json!({"decision_id": id, "label": "junk"}).to_string();
+    let (status, answer) = server.post_with(&scorer, "/v1/feedback", &body);
+    assert_eq!(
+        (status, answer["error"]["code"].as_str()),
+        (403, Some("forbidden"))
+    );
+    assert_eq!(
+        server.get_with(&scorer, &format!("/v1/decisions/{id}")).0,
+        403
+    );
+    // A moderator may; without a moderator field the token's name is used.
+    let (status, answer) = server.post_with(&moderator, "/v1/feedback", &body);
+    assert_eq!(status, 201, "{answer}");
+    assert_eq!(
+        server
+            .get_with(&moderator, &format!("/v1/decisions/{id}"))
+            .0,
+        200
+    );
+    assert_eq!(server.get_with(&moderator, "/v1/model").0, 403);
+    assert_eq!(server.get_with(&moderator, "/metrics").0, 403);
+    // An operator may do everything.
+    assert_eq!(server.get_with(&operator, "/v1/model").0, 200);
+    assert_eq!(server.post_with(&operator, "/v1/score", FINE).0, 200);
+    // Health needs no token.
+    assert_eq!(server.get("/healthz").0, 200);
+
+    let out = chaffgate(dir.path(), &["token", "list"], "");
+    let listing = stdout(&out);
+    assert!(
+        listing.contains("gateway") && listing.contains("moderate"),
+        "{listing}"
+    );
+    assert!(
+        !listing.contains(&scorer),
+        "secrets are never stored or shown again"
+    );
+    assert!(server.stop());
+}
+
+#[test]
+fn without_tokens_the_server_refuses_to_listen_beyond_loopback() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_chaffgate"))
+        .arg("serve")
+        .current_dir(dir.path())
+        .env("CHAFFGATE_SERVER_LISTEN", "0.0.0.0:0")
+        .output()
+        .expect("running chaffgate serve");
+    assert_eq!(out.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("server.listen") && err.contains("token add"),
+        "{err}"
+    );
+}

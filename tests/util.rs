@@ -158,6 +158,27 @@ impl TestServer {
         Self::answer(self.agent.get(format!("{}{path}", self.base)).call())
     }
 
+    /// GET with a bearer token.
+    pub fn get_with(&self, token: &str, path: &str) -> (u16, serde_json::Value) {
+        Self::answer(
+            self.agent
+                .get(format!("{}{path}", self.base))
+                .header("authorization", format!("Bearer {token}"))
+                .call(),
+        )
+    }
+
+    /// POST JSON with a bearer token.
+    pub fn post_with(&self, token: &str, path: &str, body: &str) -> (u16, serde_json::Value) {
+        Self::answer(
+            self.agent
+                .post(format!("{}{path}", self.base))
+                .header("content-type", "application/json")
+                .header("authorization", format!("Bearer {token}"))
+                .send(body),
+        )
+    }
+
     pub fn post(&self, path: &str, body: &str) -> (u16, serde_json::Value) {
         Self::answer(
             self.agent

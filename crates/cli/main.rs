@@ -10,6 +10,7 @@ mod eval;
 mod pipeline;
 mod rebuild;
 mod serve;
+mod token;
 
 use std::io::{IsTerminal, Read};
 use std::path::{Path, PathBuf};
@@ -58,6 +59,39 @@ enum Command {
     Serve(ServeArgs),
     /// Replay the whole feedback log into a fresh model.
     Rebuild(RebuildArgs),
+    /// Manage the daemon's access tokens.
+    #[command(subcommand)]
+    Token(TokenCommand),
+}
+
+#[derive(Subcommand)]
+enum TokenCommand {
+    /// Create a token and print its secret (once).
+    Add {
+        /// What the token may do: score < moderate < operate.
+        #[arg(long, value_enum)]
+        role: RoleArg,
+        /// A unique name, e.g. the system or person using it.
+        #[arg(long)]
+        name: String,
+    },
+    /// List tokens (names and roles; secrets are never stored).
+    List,
+    /// Revoke a token by name.
+    Revoke {
+        #[arg(long)]
+        name: String,
+    },
+}
+
+#[derive(Clone, Copy, clap::ValueEnum)]
+enum RoleArg {
+    /// Score messages only.
+    Score,
+    /// Also give feedback and read decisions.
+    Moderate,
+    /// Also run model operations and read reports and metrics.
+    Operate,
 }
 
 #[derive(Args)]
@@ -167,6 +201,20 @@ fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Eval(args) => evaluate(&config, args),
         Command::Score(args) => score(&config, args),
         Command::Serve(args) => serve(&config, args),
+        Command::Token(command) => runtime()?.block_on(async {
+            match command {
+                TokenCommand::Add { role, name } => {
+                    let role = match role {
+                        RoleArg::Score => chaffgate_store::Role::Score,
+                        RoleArg::Moderate => chaffgate_store::Role::Moderate,
+                        RoleArg::Operate => chaffgate_store::Role::Operate,
+                    };
+                    token::add(&config, &name, role).await
+                }
+                TokenCommand::List => token::list(&config).await,
+                TokenCommand::Revoke { name } => token::revoke(&config, &name).await,
+            }
+        }),
         Command::Rebuild(args) => runtime()?.block_on(rebuild::run(
             &config,
             rebuild::RebuildOptions { out: args.out },

@@ -18,7 +18,8 @@ use anyhow::{Context, bail};
 use chaffgate_model::Model;
 use chaffgate_server::model_file::{LoadedModel, load_model_file, save_model_file};
 use chaffgate_server::{
-    AckMode, AuditSettings, Channels, Judge, LearnerSettings, ServerSettings, Thresholds, start,
+    AckMode, AuditSettings, Channels, Judge, LearnerSettings, ServerSettings, Thresholds,
+    TokenBook, start,
 };
 use chaffgate_store::{NewCheckpoint, Store};
 use chaffgate_text::HashKey;
@@ -100,16 +101,30 @@ pub async fn run(config: &Config, options: ServeOptions) -> anyhow::Result<()> {
     ));
     tracing::info!(bits, examples_seen, model_seq, key_id, "model loaded");
 
+    let tokens = Arc::new(TokenBook::default());
+    tokens
+        .refresh(&store)
+        .await
+        .context("reading access tokens")?;
+    if tokens.is_empty() && !settings.listen.ip().is_loopback() {
+        bail!(
+            "server.listen = {}: without access tokens the service only listens on loopback; \
+             add one with `chaffgate token add --role operate --name NAME` first",
+            settings.listen
+        );
+    }
     let listener = TcpListener::bind(settings.listen)
         .await
         .with_context(|| format!("listening on {}", settings.listen))?;
     let address = listener.local_addr()?;
     // One line on stdout for people and scripts (the port may have been 0).
     println!("chaffgate listening on http://{address}");
-    if address.ip().is_loopback() {
-        tracing::info!(%address, "listening on loopback only: other machines cannot reach this service");
+    if tokens.is_empty() {
+        tracing::warn!(%address, "no access tokens exist: the service is open to every local user, so it listens on loopback only; add tokens with `chaffgate token add`");
+    } else if address.ip().is_loopback() {
+        tracing::info!(%address, "listening on loopback only; requests need a bearer token");
     } else {
-        tracing::warn!(%address, "listening beyond loopback without access tokens: anyone who can reach this address can use the service");
+        tracing::info!(%address, "listening; requests need a bearer token");
     }
     let learner_settings = LearnerSettings {
         checkpoint_dir: data_dir.join(CHECKPOINT_DIR),
@@ -118,7 +133,14 @@ pub async fn run(config: &Config, options: ServeOptions) -> anyhow::Result<()> {
         keep_checkpoints: config.learner.keep_checkpoints as usize,
         poll_every: Duration::from_millis(config.learner.poll_every_ms),
     };
-    let (state, tasks) = start(settings, learner_settings, judge, store.clone(), back);
+    let (state, tasks) = start(
+        settings,
+        learner_settings,
+        judge,
+        store.clone(),
+        back,
+        tokens,
+    );
     chaffgate_server::serve(listener, state, tasks, shutdown_signal())
         .await
         .context("serving HTTP")?;

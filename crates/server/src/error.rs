@@ -51,6 +51,12 @@ pub enum ApiError {
     /// An idempotency key came back with different feedback.
     #[error("{0}")]
     IdempotencyKeyReused(String),
+    /// No token, or an unknown or revoked one.
+    #[error("{0}")]
+    Unauthenticated(String),
+    /// A valid token without the role this route needs.
+    #[error("{0}")]
+    Forbidden(String),
     /// The server is shutting down or a background task is gone.
     #[error("the service is shutting down; retry on another replica or later")]
     Unavailable,
@@ -78,6 +84,8 @@ impl ApiError {
             ApiError::DecisionExpired(_) => "decision_expired",
             ApiError::InvalidFeedback(_) => "invalid_feedback",
             ApiError::IdempotencyKeyReused(_) => "idempotency_key_reused",
+            ApiError::Unauthenticated(_) => "unauthenticated",
+            ApiError::Forbidden(_) => "forbidden",
             ApiError::Unavailable => "unavailable",
             ApiError::Internal(_) => "internal",
         }
@@ -96,6 +104,8 @@ impl ApiError {
             ApiError::DecisionExpired(_) => StatusCode::GONE,
             ApiError::InvalidFeedback(_) => StatusCode::UNPROCESSABLE_ENTITY,
             ApiError::IdempotencyKeyReused(_) => StatusCode::CONFLICT,
+            ApiError::Unauthenticated(_) => StatusCode::UNAUTHORIZED,
+            ApiError::Forbidden(_) => StatusCode::FORBIDDEN,
             ApiError::Unavailable => StatusCode::SERVICE_UNAVAILABLE,
             ApiError::Internal(_) => StatusCode::INTERNAL_SERVER_ERROR,
         }
@@ -108,7 +118,14 @@ impl IntoResponse for ApiError {
             tracing::error!(error = %source, "internal error answering a request");
         }
         let body = json!({ "error": { "code": self.code(), "message": self.to_string() } });
-        (self.status(), Json(body)).into_response()
+        let mut response = (self.status(), Json(body)).into_response();
+        if matches!(self, ApiError::Unauthenticated(_)) {
+            response.headers_mut().insert(
+                axum::http::header::WWW_AUTHENTICATE,
+                axum::http::HeaderValue::from_static("Bearer"),
+            );
+        }
+        response
     }
 }
 

@@ -7,6 +7,7 @@
 //! audit sender so the writer commits what is queued and ends.
 
 pub mod audit;
+pub mod auth;
 pub mod error;
 pub mod judge;
 pub mod learner;
@@ -19,14 +20,15 @@ pub mod state;
 use std::future::Future;
 use std::sync::Arc;
 
-use axum::Router;
 use axum::extract::{DefaultBodyLimit, State};
 use axum::routing::{get, post};
+use axum::{Router, middleware};
 use chaffgate_store::Store;
 use tokio::net::TcpListener;
 use tokio::sync::mpsc;
 use tokio::task::JoinHandle;
 
+pub use crate::auth::TokenBook;
 pub use crate::judge::{Judge, Judgement, Reason, Snapshot};
 pub use crate::learner::{Learner, LearnerSettings, LearnerStatus};
 pub use crate::metrics::Metrics;
@@ -41,6 +43,7 @@ pub struct Tasks {
     audit: JoinHandle<()>,
     learner: JoinHandle<()>,
     janitor: JoinHandle<()>,
+    token_refresher: JoinHandle<()>,
 }
 
 /// How often expired decision inputs are deleted.
@@ -55,6 +58,7 @@ pub fn start(
     judge: Arc<Judge>,
     store: Store,
     back: chaffgate_model::Model,
+    tokens: Arc<TokenBook>,
 ) -> (AppState, Tasks) {
     let metrics = Arc::new(Metrics::default());
     let model_seq = judge.snapshot().model_seq;
@@ -84,7 +88,9 @@ pub fn start(
         metrics,
         learner_status,
         wake_tx,
+        Arc::clone(&tokens),
     );
+    let token_refresher = tokio::spawn(auth::keep_fresh(tokens, store.clone()));
     let janitor = tokio::spawn(purge_expired_inputs(store.clone()));
     (
         state,
@@ -92,6 +98,7 @@ pub fn start(
             audit,
             learner,
             janitor,
+            token_refresher,
         },
     )
 }
@@ -110,6 +117,10 @@ pub fn app(state: AppState) -> Router {
         .route("/readyz", get(routes::readyz))
         .route("/metrics", get(metrics_text))
         .fallback(routes::not_found)
+        .layer(middleware::from_fn_with_state(
+            state.clone(),
+            auth::authenticate,
+        ))
         .layer(DefaultBodyLimit::max(max_body_bytes))
         .with_state(state)
 }
@@ -147,6 +158,7 @@ pub async fn serve(
         .await?;
     // Purging is idempotent; stopping it mid-way loses nothing.
     tasks.janitor.abort();
+    tasks.token_refresher.abort();
     // The router (and with it every AppState clone holding an audit
     // sender) is gone now, so the writer drains and ends.
     if let Err(err) = tasks.audit.await {

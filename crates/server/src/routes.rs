@@ -14,6 +14,7 @@ use serde::{Deserialize, Serialize};
 use tokio::sync::oneshot;
 
 use crate::audit::AuditJob;
+use crate::auth::Caller;
 use crate::error::{ApiError, ApiJson, ApiPath, ApiQuery};
 use crate::judge::Reason;
 use crate::settings::AckMode;
@@ -413,6 +414,7 @@ const MAX_FEEDBACK_FIELD_BYTES: usize = 4096;
 /// committed; 200 for a repeat.
 pub async fn feedback(
     State(state): State<AppState>,
+    axum::Extension(caller): axum::Extension<Caller>,
     ApiJson(request): ApiJson<FeedbackRequest>,
 ) -> Result<Response, ApiError> {
     use chaffgate_store::{FeedbackOutcome, FeedbackTarget, Label, NewFeedback};
@@ -423,7 +425,8 @@ pub async fn feedback(
             request.label
         ))
     })?;
-    let moderator = request.moderator.unwrap_or_default();
+    // Without a moderator name, the token's name says who it was.
+    let moderator = request.moderator.or(caller.name).unwrap_or_default();
     if moderator.trim().is_empty() {
         return Err(ApiError::InvalidFeedback(
             "moderator is required: who gave this label".to_owned(),

@@ -7,6 +7,7 @@ use chaffgate_store::Store;
 use tokio::sync::mpsc;
 
 use crate::audit::AuditJob;
+use crate::auth::TokenBook;
 use crate::judge::Judge;
 use crate::learner::LearnerStatus;
 use crate::metrics::Metrics;
@@ -25,6 +26,7 @@ struct Inner {
     metrics: Arc<Metrics>,
     learner: Arc<LearnerStatus>,
     wake_learner_tx: mpsc::Sender<()>,
+    tokens: Arc<TokenBook>,
 }
 
 impl AppState {
@@ -36,6 +38,7 @@ impl AppState {
         metrics: Arc<Metrics>,
         learner: Arc<LearnerStatus>,
         wake_learner_tx: mpsc::Sender<()>,
+        tokens: Arc<TokenBook>,
     ) -> AppState {
         AppState {
             inner: Arc::new(Inner {
@@ -46,6 +49,7 @@ impl AppState {
                 metrics,
                 learner,
                 wake_learner_tx,
+                tokens,
             }),
         }
     }
@@ -73,6 +77,10 @@ impl AppState {
     /// Ready once the learner has replayed the feedback log.
     pub fn is_ready(&self) -> bool {
         self.inner.learner.is_caught_up()
+    }
+
+    pub fn tokens(&self) -> &TokenBook {
+        &self.inner.tokens
     }
 
     pub fn learner(&self) -> &LearnerStatus {
