@@ -33,7 +33,7 @@ pub use crate::judge::{Judge, Judgement, Reason, Snapshot};
 pub use crate::learner::{Learner, LearnerSettings, LearnerStatus};
 pub use crate::metrics::Metrics;
 pub use crate::settings::{AckMode, AuditSettings, Channels, ServerSettings, Thresholds};
-pub use crate::state::AppState;
+pub use crate::state::{AppState, StateParts};
 
 /// Rows waiting for the audit writer before handlers wait to enqueue.
 const AUDIT_QUEUE: usize = 8192;
@@ -80,16 +80,16 @@ pub fn start(
         audit_rx,
         move |figures| batch_metrics.count_audit_batch(figures),
     );
-    let state = AppState::new(
+    let state = AppState::new(StateParts {
         settings,
         judge,
-        store.clone(),
+        store: store.clone(),
         audit_tx,
         metrics,
-        learner_status,
-        wake_tx,
-        Arc::clone(&tokens),
-    );
+        learner: learner_status,
+        wake_learner_tx: wake_tx,
+        tokens: Arc::clone(&tokens),
+    });
     let token_refresher = tokio::spawn(auth::keep_fresh(tokens, store.clone()));
     let janitor = tokio::spawn(purge_expired_inputs(store.clone()));
     (

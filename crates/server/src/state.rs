@@ -29,17 +29,30 @@ struct Inner {
     tokens: Arc<TokenBook>,
 }
 
+/// Everything an [`AppState`] holds, gathered by `start`.
+pub struct StateParts {
+    pub settings: ServerSettings,
+    pub judge: Arc<Judge>,
+    pub store: Store,
+    pub audit_tx: mpsc::Sender<AuditJob>,
+    pub metrics: Arc<Metrics>,
+    pub learner: Arc<LearnerStatus>,
+    pub wake_learner_tx: mpsc::Sender<()>,
+    pub tokens: Arc<TokenBook>,
+}
+
 impl AppState {
-    pub fn new(
-        settings: ServerSettings,
-        judge: Arc<Judge>,
-        store: Store,
-        audit_tx: mpsc::Sender<AuditJob>,
-        metrics: Arc<Metrics>,
-        learner: Arc<LearnerStatus>,
-        wake_learner_tx: mpsc::Sender<()>,
-        tokens: Arc<TokenBook>,
-    ) -> AppState {
+    pub fn new(parts: StateParts) -> AppState {
+        let StateParts {
+            settings,
+            judge,
+            store,
+            audit_tx,
+            metrics,
+            learner,
+            wake_learner_tx,
+            tokens,
+        } = parts;
         AppState {
             inner: Arc::new(Inner {
                 settings,
