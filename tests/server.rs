@@ -396,3 +396,84 @@ fn without_tokens_the_server_refuses_to_listen_beyond_loopback() {
         "{err}"
     );
 }
+
+#[test]
+fn rollback_serves_a_checkpoint_and_unlearns_later_feedback() {
+    let dir = tempfile::tempdir().unwrap();
+    let env = [("CHAFFGATE_LEARNER_CHECKPOINT_EVERY_UPDATES", "2")];
+    let server = TestServer::start_in(dir.path(), &env);
+    let mut ids = Vec::new();
+    for body in [JUNK, FINE, JUNK, JUNK] {
+        let (_, decision) = server.post("/v1/score", body);
+        ids.push(decision["decision_id"].as_str().unwrap().to_owned());
+    }
+    assert_eq!(feedback(&server, &ids[0], "junk").0, 201);
+    assert_eq!(feedback(&server, &ids[1], "fine").0, 201);
+    // Two learnt rows make a checkpoint (written just after learning).
+    let checkpoint = (0..500)
+        .find_map(|_| {
+            let model = wait_learnt(&server);
+            let found = model["checkpoints"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .find(|c| c["last_seq"] == 2)
+                .cloned();
+            if found.is_none() {
+                std::thread::sleep(std::time::Duration::from_millis(10));
+            }
+            found
+        })
+        .expect("a checkpoint at seq 2");
+    let at_two = p_junk(&server.post("/v1/score", JUNK).1);
+
+    // Two moderators disagree with the first: junk-looking mail is fine.
+    assert_eq!(feedback(&server, &ids[2], "fine").0, 201);
+    assert_eq!(feedback(&server, &ids[3], "fine").0, 201);
+    wait_learnt(&server);
+    let at_four = p_junk(&server.post("/v1/score", JUNK).1);
+    assert!(at_four < at_two, "{at_four} < {at_two}");
+
+    let body = json!({"checkpoint_id": checkpoint["id"]}).to_string();
+    let (status, report) = server.post("/v1/model/rollback", &body);
+    assert_eq!(status, 200, "{report}");
+    assert_eq!(report["model_seq"], 2);
+    assert_eq!(report["revoked_rows"], 2);
+    let (_, again) = server.post("/v1/score", JUNK);
+    assert_eq!(p_junk(&again), at_two, "the checkpoint's weights, exactly");
+    assert_eq!(again["model_seq"], 2);
+
+    let (status, answer) = server.post("/v1/model/rollback", r#"{"checkpoint_id": 999}"#);
+    assert_eq!(
+        (status, answer["error"]["code"].as_str()),
+        (404, Some("unknown_checkpoint"))
+    );
+
+    // New feedback after the rollback is learnt on top of it, and the model
+    // is still what the log minus revoked rows gives.
+    let (_, decision) = server.post("/v1/score", FINE);
+    let id = decision["decision_id"].as_str().unwrap();
+    assert_eq!(feedback(&server, id, "fine").1["seq"], 5);
+    wait_learnt_to(&server, 5);
+    assert!(server.stop());
+    let out = chaffgate(dir.path(), &["rebuild", "--out", "rebuilt.cgm"], "");
+    let text = stdout(&out);
+    assert!(
+        out.status.success(),
+        "{text}\n{}",
+        crate::util::stderr(&out)
+    );
+    assert!(text.contains("rebuilt from 3 feedback rows"), "{text}");
+    assert!(text.contains("bit for bit"), "{text}");
+}
+
+/// Waits until the model includes feedback up to `seq`.
+fn wait_learnt_to(server: &TestServer, seq: i64) {
+    for _ in 0..500 {
+        if server.get("/v1/model").1["model_seq"] == seq {
+            return;
+        }
+        std::thread::sleep(std::time::Duration::from_millis(10));
+    }
+    panic!("the model never reached seq {seq}");
+}

@@ -51,6 +51,12 @@ pub enum ApiError {
     /// An idempotency key came back with different feedback.
     #[error("{0}")]
     IdempotencyKeyReused(String),
+    /// No live checkpoint has this id.
+    #[error("no checkpoint with id {0}; GET /v1/model lists them")]
+    UnknownCheckpoint(i64),
+    /// A checkpoint exists but its file cannot be used.
+    #[error("{0}")]
+    CheckpointUnusable(String),
     /// No token, or an unknown or revoked one.
     #[error("{0}")]
     Unauthenticated(String),
@@ -84,6 +90,8 @@ impl ApiError {
             ApiError::DecisionExpired(_) => "decision_expired",
             ApiError::InvalidFeedback(_) => "invalid_feedback",
             ApiError::IdempotencyKeyReused(_) => "idempotency_key_reused",
+            ApiError::UnknownCheckpoint(_) => "unknown_checkpoint",
+            ApiError::CheckpointUnusable(_) => "checkpoint_unusable",
             ApiError::Unauthenticated(_) => "unauthenticated",
             ApiError::Forbidden(_) => "forbidden",
             ApiError::Unavailable => "unavailable",
@@ -104,6 +112,8 @@ impl ApiError {
             ApiError::DecisionExpired(_) => StatusCode::GONE,
             ApiError::InvalidFeedback(_) => StatusCode::UNPROCESSABLE_ENTITY,
             ApiError::IdempotencyKeyReused(_) => StatusCode::CONFLICT,
+            ApiError::UnknownCheckpoint(_) => StatusCode::NOT_FOUND,
+            ApiError::CheckpointUnusable(_) => StatusCode::CONFLICT,
             ApiError::Unauthenticated(_) => StatusCode::UNAUTHORIZED,
             ApiError::Forbidden(_) => StatusCode::FORBIDDEN,
             ApiError::Unavailable => StatusCode::SERVICE_UNAVAILABLE,

@@ -26,11 +26,11 @@ use std::time::{Duration, Instant};
 use chaffgate_model::Model;
 use chaffgate_store::{FeedbackRow, FeedbackSeq, Label, NewCheckpoint, Store};
 use chaffgate_text::{Extractor, Features, Message};
-use tokio::sync::mpsc;
+use tokio::sync::{mpsc, oneshot};
 use tokio::task::JoinHandle;
 
 use crate::judge::{Judge, Snapshot};
-use crate::model_file::save_model_file;
+use crate::model_file::{load_model_file, save_model_file};
 use crate::state::now_ms;
 
 /// Rows read from the log per step.
@@ -103,6 +103,44 @@ impl LearnerStatus {
             }
         }
     }
+}
+
+/// What the learner can be asked to do.
+pub enum LearnerCommand {
+    /// A feedback row was committed: catch up.
+    Wake,
+    /// Return to a checkpoint: un-learn (revoke) every feedback row after
+    /// it and serve its weights.
+    Rollback {
+        checkpoint_id: i64,
+        done_tx: oneshot::Sender<Result<RollbackReport, RollbackError>>,
+    },
+}
+
+/// What a rollback did.
+#[derive(Debug, Clone, serde::Serialize)]
+pub struct RollbackReport {
+    /// The checkpoint returned to.
+    pub checkpoint_id: i64,
+    /// The model now includes the log up to this row.
+    pub model_seq: i64,
+    /// Feedback rows after it, now revoked (skipped by every replay).
+    pub revoked_rows: u64,
+    /// The checkpoint written for the rolled-back model.
+    pub new_checkpoint: String,
+}
+
+#[derive(Debug, thiserror::Error)]
+pub enum RollbackError {
+    /// No live checkpoint has this id.
+    #[error("no checkpoint with id {0}")]
+    UnknownCheckpoint(i64),
+    /// The checkpoint file is missing, damaged or from another key.
+    #[error("checkpoint {id} cannot be used: {problem}")]
+    Unusable { id: i64, problem: String },
+    /// The database failed.
+    #[error(transparent)]
+    Store(#[from] chaffgate_store::StoreError),
 }
 
 /// One row turned into what the update needs.
@@ -181,8 +219,9 @@ impl Learner {
         Arc::clone(&self.status)
     }
 
-    /// Runs until `wake_rx` is closed, then catches up, checkpoints and ends.
-    pub fn spawn(mut self, mut wake_rx: mpsc::Receiver<()>) -> JoinHandle<()> {
+    /// Runs until `commands_rx` is closed, then catches up, checkpoints and
+    /// ends.
+    pub fn spawn(mut self, mut commands_rx: mpsc::Receiver<LearnerCommand>) -> JoinHandle<()> {
         tokio::spawn(async move {
             if let Err(err) = self.catch_up().await {
                 tracing::error!(error = %err, "replaying the feedback log failed");
@@ -194,11 +233,15 @@ impl Learner {
             poll.set_missed_tick_behavior(tokio::time::MissedTickBehavior::Delay);
             loop {
                 tokio::select! {
-                    woke = wake_rx.recv() => {
-                        if woke.is_none() {
-                            break;
+                    command = commands_rx.recv() => match command {
+                        None => break,
+                        Some(LearnerCommand::Wake) => {}
+                        Some(LearnerCommand::Rollback { checkpoint_id, done_tx }) => {
+                            let result = self.rollback(checkpoint_id).await;
+                            let _ = done_tx.send(result);
+                            continue;
                         }
-                    }
+                    },
                     _ = poll.tick() => {}
                 }
                 if let Err(err) = self.catch_up().await {
@@ -280,6 +323,73 @@ impl Learner {
         self.applied_seq = last_seq;
         self.status.applied_seq.store(last_seq, Ordering::Release);
         self.updates_since_checkpoint += examples.len() as u64;
+    }
+
+    /// Serves the checkpoint's weights and revokes the feedback after it, so
+    /// that the model stays what the log (minus revoked rows) gives.
+    async fn rollback(&mut self, checkpoint_id: i64) -> Result<RollbackReport, RollbackError> {
+        let rows = self.store.list_checkpoints().await?;
+        let row = rows
+            .into_iter()
+            .find(|row| row.id == checkpoint_id)
+            .ok_or(RollbackError::UnknownCheckpoint(checkpoint_id))?;
+        let path = self.settings.checkpoint_dir.join(&row.file_name);
+        let loaded = tokio::task::spawn_blocking(move || load_model_file(&path))
+            .await
+            .map_err(|err| RollbackError::Unusable {
+                id: checkpoint_id,
+                problem: err.to_string(),
+            })?
+            .map_err(|err| RollbackError::Unusable {
+                id: checkpoint_id,
+                problem: err.to_string(),
+            })?;
+        if loaded.key.key_id() != self.judge.key().key_id()
+            || &loaded.settings != self.judge.settings()
+        {
+            return Err(RollbackError::Unusable {
+                id: checkpoint_id,
+                problem: "it was made with another hash key or other feature settings".to_owned(),
+            });
+        }
+        let seq = loaded.last_seq;
+        let revoked_rows = self
+            .store
+            .revoke_feedback_after(FeedbackSeq(seq), now_ms())
+            .await?;
+        let back = loaded.model.clone();
+        let old = self.judge.publish(Arc::new(Snapshot {
+            model: loaded.model,
+            model_seq: seq,
+        }));
+        drop(old);
+        self.back = Some(back);
+        self.applied_seq = seq;
+        self.status.applied_seq.store(seq, Ordering::Release);
+        self.checkpoint("rollback").await;
+        let new_checkpoint = self
+            .store
+            .list_checkpoints()
+            .await?
+            .into_iter()
+            .next()
+            .map(|row| row.file_name)
+            .unwrap_or_default();
+        let detail = serde_json::json!({
+            "checkpoint_id": checkpoint_id,
+            "model_seq": seq,
+            "revoked_rows": revoked_rows,
+        });
+        self.store
+            .record_model_event("rollback", &detail.to_string(), now_ms())
+            .await?;
+        tracing::warn!(checkpoint_id, seq, revoked_rows, "model rolled back");
+        Ok(RollbackReport {
+            checkpoint_id,
+            model_seq: seq,
+            revoked_rows,
+            new_checkpoint,
+        })
     }
 
     /// Writes the back copy (identical to the front) as a checkpoint,

@@ -70,8 +70,8 @@ pub fn start(
         model_seq,
     );
     let learner_status = learner.status();
-    let (wake_tx, wake_rx) = mpsc::channel(1);
-    let learner = learner.spawn(wake_rx);
+    let (learner_tx, learner_rx) = mpsc::channel(16);
+    let learner = learner.spawn(learner_rx);
     let (audit_tx, audit_rx) = mpsc::channel(AUDIT_QUEUE);
     let batch_metrics = Arc::clone(&metrics);
     let audit = audit::spawn_writer(
@@ -87,7 +87,7 @@ pub fn start(
         audit_tx,
         metrics,
         learner: learner_status,
-        wake_learner_tx: wake_tx,
+        learner_tx,
         tokens: Arc::clone(&tokens),
     });
     let token_refresher = tokio::spawn(auth::keep_fresh(tokens, store.clone()));
@@ -113,6 +113,7 @@ pub fn app(state: AppState) -> Router {
         .route("/v1/decisions/{id}", get(routes::decision))
         .route("/v1/feedback", post(routes::feedback))
         .route("/v1/model", get(routes::model))
+        .route("/v1/model/rollback", post(routes::rollback))
         .route("/healthz", get(routes::healthz))
         .route("/readyz", get(routes::readyz))
         .route("/metrics", get(metrics_text))

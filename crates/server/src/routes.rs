@@ -601,3 +601,35 @@ pub async fn model(State(state): State<AppState>) -> Result<ApiJson<ModelView>, 
         top_fine: top_fine.into_iter().map(name).collect(),
     }))
 }
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RollbackRequest {
+    checkpoint_id: i64,
+}
+
+/// `POST /v1/model/rollback`: serve a checkpoint's weights again and
+/// revoke the feedback learnt after it.
+pub async fn rollback(
+    State(state): State<AppState>,
+    ApiJson(request): ApiJson<RollbackRequest>,
+) -> Result<ApiJson<crate::learner::RollbackReport>, ApiError> {
+    use crate::learner::{LearnerCommand, RollbackError};
+    let (done_tx, done_rx) = oneshot::channel();
+    state
+        .learner_tx()
+        .send(LearnerCommand::Rollback {
+            checkpoint_id: request.checkpoint_id,
+            done_tx,
+        })
+        .await
+        .map_err(|_| ApiError::Unavailable)?;
+    match done_rx.await.map_err(|_| ApiError::Unavailable)? {
+        Ok(report) => Ok(ApiJson(report)),
+        Err(RollbackError::UnknownCheckpoint(id)) => Err(ApiError::UnknownCheckpoint(id)),
+        Err(err @ RollbackError::Unusable { .. }) => {
+            Err(ApiError::CheckpointUnusable(err.to_string()))
+        }
+        Err(RollbackError::Store(err)) => Err(err.into()),
+    }
+}

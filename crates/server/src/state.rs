@@ -9,7 +9,7 @@ use tokio::sync::mpsc;
 use crate::audit::AuditJob;
 use crate::auth::TokenBook;
 use crate::judge::Judge;
-use crate::learner::LearnerStatus;
+use crate::learner::{LearnerCommand, LearnerStatus};
 use crate::metrics::Metrics;
 use crate::settings::ServerSettings;
 
@@ -25,7 +25,7 @@ struct Inner {
     audit_tx: mpsc::Sender<AuditJob>,
     metrics: Arc<Metrics>,
     learner: Arc<LearnerStatus>,
-    wake_learner_tx: mpsc::Sender<()>,
+    learner_tx: mpsc::Sender<LearnerCommand>,
     tokens: Arc<TokenBook>,
 }
 
@@ -37,7 +37,7 @@ pub struct StateParts {
     pub audit_tx: mpsc::Sender<AuditJob>,
     pub metrics: Arc<Metrics>,
     pub learner: Arc<LearnerStatus>,
-    pub wake_learner_tx: mpsc::Sender<()>,
+    pub learner_tx: mpsc::Sender<LearnerCommand>,
     pub tokens: Arc<TokenBook>,
 }
 
@@ -50,7 +50,7 @@ impl AppState {
             audit_tx,
             metrics,
             learner,
-            wake_learner_tx,
+            learner_tx,
             tokens,
         } = parts;
         AppState {
@@ -61,7 +61,7 @@ impl AppState {
                 audit_tx,
                 metrics,
                 learner,
-                wake_learner_tx,
+                learner_tx,
                 tokens,
             }),
         }
@@ -103,7 +103,12 @@ impl AppState {
     /// Tells the learner a feedback row was committed. A wake-up already
     /// pending covers this one too.
     pub fn wake_learner(&self) {
-        let _ = self.inner.wake_learner_tx.try_send(());
+        let _ = self.inner.learner_tx.try_send(LearnerCommand::Wake);
+    }
+
+    /// The learner's command channel (for model operations).
+    pub fn learner_tx(&self) -> &mpsc::Sender<LearnerCommand> {
+        &self.inner.learner_tx
     }
 
     /// A new time-ordered decision id (a ULID).

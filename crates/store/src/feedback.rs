@@ -309,6 +309,24 @@ impl Store {
         .map_err(db("revoking feedback"))?;
         Ok(done.rows_affected() == 1)
     }
+
+    /// Revokes every live row after `seq` (what a rollback to a checkpoint
+    /// taken at `seq` un-learns), in one statement. Returns how many.
+    pub async fn revoke_feedback_after(
+        &self,
+        seq: FeedbackSeq,
+        now_ms: i64,
+    ) -> Result<u64, StoreError> {
+        let done = sqlx::query(
+            "UPDATE feedback SET revoked_at_ms = ? WHERE seq > ? AND revoked_at_ms IS NULL",
+        )
+        .bind(now_ms)
+        .bind(seq)
+        .execute(&self.pool)
+        .await
+        .map_err(db("revoking feedback after a sequence number"))?;
+        Ok(done.rows_affected())
+    }
 }
 
 #[cfg(test)]
@@ -807,5 +825,44 @@ mod tests {
         let want: Vec<FeedbackSeq> = (1..=TASKS * EACH).map(FeedbackSeq).collect();
         assert_eq!(all, want);
         store.close().await;
+    }
+
+    #[tokio::test]
+    async fn revoking_after_a_seq_hides_later_rows_from_replay() {
+        let (_dir, store) = scratch().await;
+        for n in 0..5 {
+            let new = NewFeedback {
+                target: FeedbackTarget::Inline {
+                    message_json: format!("{{\"body\":\"m{n}\"}}"),
+                },
+                label: Label::Junk,
+                moderator: "mod-ana".to_owned(),
+                note: None,
+                idempotency_key: None,
+            };
+            store.append_feedback(&new, 1_000).await.unwrap();
+        }
+        assert_eq!(
+            store
+                .revoke_feedback_after(FeedbackSeq(2), 2_000)
+                .await
+                .unwrap(),
+            3
+        );
+        assert_eq!(
+            store
+                .revoke_feedback_after(FeedbackSeq(2), 3_000)
+                .await
+                .unwrap(),
+            0
+        );
+        let live: Vec<i64> = store
+            .feedback_after(FeedbackSeq::ZERO, 100)
+            .await
+            .unwrap()
+            .iter()
+            .map(|row| row.seq.0)
+            .collect();
+        assert_eq!(live, [1, 2]);
     }
 }
