@@ -60,18 +60,32 @@
 //! Features are binary: an index present twice counts once. With `n`
 //! distinct indices each value is `1/sqrt(n)` (an `f32`), so every message
 //! vector has unit L2 norm and long messages do not shout louder than short
-//! ones. Because a repeat adds nothing, the hot path skips the word and
-//! n-gram features of words already seen in a long field (see the `seen`
-//! module); the result is the same.
+//! ones.
+//!
+//! # The feature cache
+//!
+//! Hashing words dominates extraction, and the same words come back in
+//! message after message. So [`Extractor::extract`] keeps a bounded cache
+//! (the `cache` module) from field and word to the indices of the word
+//! feature and its n-grams, and from two adjacent cached words to their
+//! pair's index; a repeated word costs one table lookup instead of several
+//! SipHash calls. The cache only ever holds what computing the feature
+//! gives: an index depends on nothing but the key, `bits`, the settings and
+//! the feature's bytes, all fixed for one extractor, and entries are found
+//! by comparing the whole word. It also lets the walk skip the words and
+//! pairs a field already gave, since a repeat adds nothing. So the vector
+//! is the same, bit for bit, with a cold, a warm or no cache; the tests at
+//! the foot of this module check that, and [`Extractor::extract_named`],
+//! which never uses the cache, gives the same indices (property tests).
 
 use std::collections::BTreeMap;
 use std::fmt::Write;
 
 use crate::buckets::{self, count_label, digits_label, exclaim_label, length_label, share_label};
+use crate::cache::{FeatureCache, WordId};
 use crate::hashing::{HashKey, TagState, index_of, mask_for};
 use crate::message::{Message, MetaValue};
 use crate::normalize::normalize_into;
-use crate::seen::SeenWords;
 use crate::sender::{parse_sender, top_level};
 use crate::settings::{FeatureSettings, SettingsProblem};
 use crate::sort::{SortScratch, sort_dedup};
@@ -287,6 +301,15 @@ trait Sink {
 
     /// One occurrence; `name` writes its readable name when called.
     fn add(&mut self, index: u32, name: impl FnOnce(&mut String));
+
+    /// Occurrences without names, from the feature cache. Only called on
+    /// sinks that do not use names.
+    fn add_unnamed(&mut self, indices: &[u32]) {
+        debug_assert!(!Self::NAMED, "cached indices have no names");
+        for &index in indices {
+            self.add(index, |_| {});
+        }
+    }
 }
 
 /// The hot path: indices only, names are never built.
@@ -298,6 +321,11 @@ impl Sink for IndexSink<'_> {
     #[inline]
     fn add(&mut self, index: u32, _name: impl FnOnce(&mut String)) {
         self.0.push(index);
+    }
+
+    #[inline]
+    fn add_unnamed(&mut self, indices: &[u32]) {
+        self.0.extend_from_slice(indices);
     }
 }
 
@@ -338,23 +366,14 @@ impl Hashing {
     }
 }
 
-/// Fields shorter than this (in bytes) do not track seen words: they repeat
-/// too few words to pay for it.
-const SEEN_MIN_BYTES: usize = 256;
-
-/// Scratch space of the word walk.
-#[derive(Debug, Clone, Default)]
-struct WordScratch {
-    /// The current word with n-gram markers.
-    padded: String,
-    seen: SeenWords,
-}
-
 /// Text buffers reused across messages.
 #[derive(Debug, Clone, Default)]
 struct Buffers {
     field: String,
-    words: WordScratch,
+    /// The current word with n-gram markers.
+    padded: String,
+    /// Word and pair features of earlier words; see the `cache` module.
+    cache: FeatureCache,
     sender: String,
     key: String,
     value: String,
@@ -364,7 +383,8 @@ struct Buffers {
 
 /// Turns messages into feature vectors under fixed settings and key.
 ///
-/// Holds scratch buffers, so one extractor per thread; clone it for more.
+/// Holds scratch buffers and a bounded cache of word and pair features
+/// (about 3 MiB at most), so one extractor per thread; clone it for more.
 /// After the first few messages the buffers are warm and [`Extractor::extract`]
 /// allocates nothing for typical messages.
 #[derive(Clone)]
@@ -451,6 +471,14 @@ impl Extractor {
         named
     }
 
+    /// The same extractor with a feature cache of at most `max_words` words
+    /// (0: no cache), to compare results with and without it.
+    #[cfg(test)]
+    fn with_cache_words(mut self, max_words: usize) -> Self {
+        self.buffers.cache = FeatureCache::with_max_words(max_words);
+        self
+    }
+
     /// The normalised form of `text` (see [`crate::normalize`]) under this
     /// extractor's `max_run`.
     pub fn normalize(&mut self, text: &str) -> String {
@@ -467,18 +495,26 @@ impl Extractor {
             buffers,
             ..
         } = self;
+        // Names cannot come from the cache, so the explanation path
+        // computes everything; it is the reference the cache is tested on.
+        let cache = if S::NAMED {
+            None
+        } else {
+            Some(&mut buffers.cache)
+        };
         let mut walk = Walk {
             settings,
             hashing,
             sink,
+            cache,
             url_count: 0,
         };
         walk.add(Tag::Bias, &[], |name| name.push_str("bias"));
         if let Some(subject) = &msg.subject {
-            walk.text_field(SUBJECT, subject, &mut buffers.field, &mut buffers.words);
+            walk.text_field(SUBJECT, subject, &mut buffers.field, &mut buffers.padded);
         }
         if let Some(body) = &msg.body {
-            walk.text_field(BODY, body, &mut buffers.field, &mut buffers.words);
+            walk.text_field(BODY, body, &mut buffers.field, &mut buffers.padded);
         }
         let url_count = count_label(walk.url_count);
         walk.add(Tag::UrlCount, &[url_count.as_bytes()], |name| {
@@ -503,6 +539,8 @@ struct Walk<'a, S> {
     settings: &'a FeatureSettings,
     hashing: &'a Hashing,
     sink: &'a mut S,
+    /// `None` on the explanation path.
+    cache: Option<&'a mut FeatureCache>,
     url_count: usize,
 }
 
@@ -517,13 +555,7 @@ impl<S: Sink> Walk<'_, S> {
         usize::try_from(self.settings.max_words_per_field).unwrap_or(usize::MAX)
     }
 
-    fn text_field(
-        &mut self,
-        field: Field,
-        text: &str,
-        buffer: &mut String,
-        words: &mut WordScratch,
-    ) {
+    fn text_field(&mut self, field: Field, text: &str, buffer: &mut String, padded: &mut String) {
         let stats = normalize_into(text, self.settings.max_run, buffer);
         let text = buffer.as_str();
         let field_name = field.name;
@@ -547,54 +579,65 @@ impl<S: Sink> Walk<'_, S> {
             });
         }
 
-        self.words(field, text, words);
+        self.words(field, text, padded);
         if self.settings.symbols || self.settings.number_shapes {
             self.marks(field, text);
         }
         self.urls(text);
     }
 
-    fn words(&mut self, field: Field, text: &str, scratch: &mut WordScratch) {
+    fn words(&mut self, field: Field, text: &str, padded: &mut String) {
         let field_name = field.name;
-        let WordScratch { padded, seen } = scratch;
-        let use_seen = !S::NAMED && text.len() >= SEEN_MIN_BYTES;
-        if use_seen {
-            seen.reset(text.len() / 4);
+        let (settings, hashing) = (self.settings, self.hashing);
+        if let Some(cache) = self.cache.as_deref_mut() {
+            cache.start_field();
         }
-        let mut previous: Option<&str> = None;
-        for_each_word(text, self.cap(), |offset, word| {
-            if !use_seen || seen.insert(text, offset, word) {
-                self.word_and_ngrams(field, word, padded);
-            }
-            if self.settings.word_pairs
-                && let Some(first) = previous
+        let mut previous: Option<(&str, Option<WordId>)> = None;
+        for_each_word(text, self.cap(), |_, word| {
+            let id = match self.cache.as_deref_mut() {
+                Some(cache) => {
+                    let found = cache.word(field.word as u8, word, |out| {
+                        word_and_ngrams(
+                            settings,
+                            hashing,
+                            field,
+                            word,
+                            padded,
+                            &mut IndexSink(out),
+                        );
+                    });
+                    if let Some(indices) = found.indices {
+                        self.sink.add_unnamed(indices);
+                    }
+                    found.id
+                }
+                None => {
+                    word_and_ngrams(settings, hashing, field, word, padded, self.sink);
+                    None
+                }
+            };
+            if settings.word_pairs
+                && let Some((first, first_id)) = previous
             {
-                self.add(field.pair, &[first.as_bytes(), word.as_bytes()], |name| {
-                    let _ = write!(
-                        name,
-                        "{field_name} pair {pair:?}",
-                        pair = format!("{first} {word}")
-                    );
-                });
+                let parts: [&[u8]; 2] = [first.as_bytes(), word.as_bytes()];
+                match (self.cache.as_deref_mut(), first_id, id) {
+                    (Some(cache), Some(first_id), Some(id)) => {
+                        let pair = cache.pair(first_id, id, || hashing.index(field.pair, &parts));
+                        if let Some(index) = pair {
+                            self.sink.add_unnamed(&[index]);
+                        }
+                    }
+                    _ => self.add(field.pair, &parts, |name| {
+                        let _ = write!(
+                            name,
+                            "{field_name} pair {pair:?}",
+                            pair = format!("{first} {word}")
+                        );
+                    }),
+                }
             }
-            previous = Some(word);
+            previous = Some((word, id));
         });
-    }
-
-    /// The word feature and the word's n-grams.
-    fn word_and_ngrams(&mut self, field: Field, word: &str, padded: &mut String) {
-        let field_name = field.name;
-        self.add(field.word, &[word.as_bytes()], |name| {
-            let _ = write!(name, "{field_name} word {word:?}");
-        });
-        let ngram = usize::from(self.settings.char_ngram);
-        if ngram > 0 && has_letter(word) {
-            for_each_ngram(word, ngram, padded, |gram| {
-                self.add(field.ngram, &[gram.as_bytes()], |name| {
-                    let _ = write!(name, "{field_name} ngram {gram:?}");
-                });
-            });
-        }
     }
 
     fn marks(&mut self, field: Field, text: &str) {
@@ -733,6 +776,31 @@ impl<S: Sink> Walk<'_, S> {
                 }
             }
         }
+    }
+}
+
+/// The word feature and the word's n-grams, in this order. The feature
+/// cache stores what this gives, so it must depend on nothing but the
+/// settings, the key, the field and the word.
+fn word_and_ngrams<S: Sink>(
+    settings: &FeatureSettings,
+    hashing: &Hashing,
+    field: Field,
+    word: &str,
+    padded: &mut String,
+    sink: &mut S,
+) {
+    let field_name = field.name;
+    sink.add(hashing.index(field.word, &[word.as_bytes()]), |name| {
+        let _ = write!(name, "{field_name} word {word:?}");
+    });
+    let ngram = usize::from(settings.char_ngram);
+    if ngram > 0 && has_letter(word) {
+        for_each_ngram(word, ngram, padded, |gram| {
+            sink.add(hashing.index(field.ngram, &[gram.as_bytes()]), |name| {
+                let _ = write!(name, "{field_name} ngram {gram:?}");
+            });
+        });
     }
 }
 
@@ -1096,6 +1164,146 @@ mod tests {
         assert_eq!(out, fresh_second);
         reused.extract(&first, &mut out);
         assert_eq!(out, first_again);
+    }
+
+    /// Words that exercise the cache: repeats within and across messages
+    /// and fields, case, non-ASCII, numbers, URLs, and words too long to
+    /// cache (over 24 bytes) or to take every n-gram of (over 64).
+    const CACHE_WORDS: &[&str] = &[
+        "the",
+        "The",
+        "THE",
+        "offer",
+        "free",
+        "Free!!",
+        "entry",
+        "\u{00E9}t\u{00E9}",
+        "2024",
+        "a",
+        "prize.example.com/x",
+        "snake_case",
+        "don't",
+        "\u{65E5}\u{672C}",
+        "x",
+        "win",
+        "0800 123 4567",
+        "\u{00A3}500",
+        "supercalifragilisticexpialidocious",
+        "abcdefghijklmnopqrstuvwxyz0123456789abcdefghijklmnopqrstuvwxyz0123456789",
+    ];
+
+    /// A message from word numbers: the subject takes the first few.
+    fn message_of(picks: &[usize], subject_words: usize, with_sender: bool) -> Message {
+        let words: Vec<&str> = picks
+            .iter()
+            .map(|&pick| CACHE_WORDS[pick % CACHE_WORDS.len()])
+            .collect();
+        let split = subject_words.min(words.len());
+        Message {
+            subject: (split > 0).then(|| words[..split].join(" ")),
+            body: Some(words[split..].join(" ")),
+            sender: with_sender.then(|| "Free Entry <win@prize.example>".to_owned()),
+            ..Message::default()
+        }
+    }
+
+    /// Extracts `messages` in order with one extractor built by `make`.
+    fn extract_all(
+        settings: &FeatureSettings,
+        messages: &[Message],
+        make: impl Fn(Extractor) -> Extractor,
+    ) -> Vec<Features> {
+        let mut extractor = make(extractor(settings.clone()));
+        messages
+            .iter()
+            .map(|msg| extractor.extract_features(msg))
+            .collect()
+    }
+
+    /// Checks that a warm, a tiny and no cache give what a fresh extractor
+    /// per message (a cold cache) and the explanation path give.
+    fn assert_cache_changes_nothing(settings: &FeatureSettings, messages: &[Message]) {
+        let cold: Vec<Features> = messages
+            .iter()
+            .map(|msg| extractor(settings.clone()).extract_features(msg))
+            .collect();
+        let warm = extract_all(settings, messages, |extractor| extractor);
+        let tiny = extract_all(settings, messages, |extractor| {
+            extractor.with_cache_words(3)
+        });
+        let none = extract_all(settings, messages, |extractor| {
+            extractor.with_cache_words(0)
+        });
+        assert_eq!(warm, cold, "warm cache");
+        assert_eq!(tiny, cold, "tiny cache, emptied often");
+        assert_eq!(none, cold, "no cache");
+        let mut named = extractor(settings.clone());
+        for (msg, features) in messages.iter().zip(&cold) {
+            let mut indices: Vec<u32> = named
+                .extract_named(msg)
+                .iter()
+                .map(|feature| feature.index)
+                .collect();
+            indices.dedup();
+            assert_eq!(features.indices().collect::<Vec<_>>(), indices, "{msg:?}");
+        }
+    }
+
+    #[test]
+    fn cache_never_changes_the_vector() {
+        // Every message twice, so the second round meets a warm cache; the
+        // long bodies repeat words within a field and across fields.
+        let all: Vec<usize> = (0..CACHE_WORDS.len()).collect();
+        let mut round: Vec<Message> = vec![
+            message_of(&all, 3, true),
+            message_of(&all.repeat(12), 40, false),
+            message_of(&[0, 1, 2, 0, 1, 2, 3, 0, 3, 0], 5, false),
+            message_of(&[18, 19, 18, 19, 18], 0, true),
+            message_of(&[3, 4, 5, 3, 4, 5], 0, false),
+            // Words of the body just before, with no subject between.
+            message_of(&[3, 4, 6], 0, false),
+            message_of(&[], 0, false),
+            Message::default(),
+        ];
+        let shuffled: Vec<usize> = (0..600usize).map(|i| i * 7 % 23).collect();
+        round.push(message_of(&shuffled, 9, true));
+        let messages: Vec<Message> = round.iter().chain(&round).cloned().collect();
+        for settings in [
+            FeatureSettings::default(),
+            FeatureSettings {
+                char_ngram: 3,
+                word_pairs: false,
+                ..FeatureSettings::default()
+            },
+            FeatureSettings {
+                char_ngram: 0,
+                max_words_per_field: 7,
+                ..FeatureSettings::default()
+            },
+        ] {
+            assert_cache_changes_nothing(&settings, &messages);
+        }
+    }
+
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig::with_cases(64))]
+
+        #[test]
+        fn cache_never_changes_the_vector_of_random_streams(
+            stream in proptest::collection::vec(
+                (proptest::collection::vec(0usize..64, 0..120), 0usize..6, proptest::bool::ANY),
+                1..12,
+            ),
+            char_ngram in proptest::prop_oneof![proptest::strategy::Just(0u8), 2u8..=8],
+            word_pairs in proptest::bool::ANY,
+        ) {
+            let messages: Vec<Message> = stream
+                .iter()
+                .map(|(picks, subject_words, with_sender)| message_of(picks, *subject_words, *with_sender))
+                .collect();
+            let settings = FeatureSettings { char_ngram, word_pairs, ..FeatureSettings::default() };
+            assert_cache_changes_nothing(&settings, &messages);
+        }
     }
 
     #[test]

@@ -16,11 +16,11 @@
 
 mod ascii;
 mod buckets;
+mod cache;
 pub mod extract;
 pub mod hashing;
 mod message;
 pub mod normalize;
-mod seen;
 mod sender;
 mod settings;
 mod sort;

@@ -103,63 +103,80 @@ pub fn normalize_into(text: &str, max_run: u8, out: &mut String) -> TextStats {
     sink.stats
 }
 
-/// Per byte, the [`TextStats`] increments packed as 16-bit lanes:
-/// uppercase, lowercase, digit, non-space (lowest lane first).
-static COUNT_LANES: [u64; 256] = count_lanes();
-
-const fn count_lanes() -> [u64; 256] {
-    let mut lanes = [0u64; 256];
-    let mut i = 0;
-    while i < 256 {
-        let byte = i as u8;
-        lanes[i] = (byte.is_ascii_uppercase() as u64)
-            | (byte.is_ascii_lowercase() as u64) << 16
-            | (byte.is_ascii_digit() as u64) << 32
-            | (!byte.is_ascii_whitespace() as u64) << 48;
-        i += 1;
-    }
-    lanes
-}
-
-/// The ASCII path. One pass counts and looks for runs to collapse; text
-/// without such runs (nearly all of it) is then copied and lowercased in
-/// bulk.
-fn normalize_ascii(text: &str, max_run: usize, out: &mut String) -> TextStats {
-    let bytes = text.as_bytes();
+/// Counts of ASCII text. Written so that the compiler can vectorise it:
+/// 8-bit counters over chunks of at most 255 bytes, so none overflows.
+fn count_ascii(bytes: &[u8]) -> TextStats {
     let mut stats = TextStats {
         chars: bytes.len(),
         ..TextStats::default()
     };
-    // Four 16-bit counters packed in one u64, one table lookup per byte;
-    // chunks of at most 65535 bytes keep every lane from overflowing.
-    for chunk in bytes.chunks(usize::from(u16::MAX)) {
-        let mut packed = 0u64;
+    for chunk in bytes.chunks(usize::from(u8::MAX)) {
+        let (mut uppercase, mut lowercase, mut digits, mut spaces) = (0u8, 0u8, 0u8, 0u8);
         for &byte in chunk {
-            packed += COUNT_LANES[usize::from(byte)];
+            uppercase += u8::from(byte.is_ascii_uppercase());
+            lowercase += u8::from(byte.is_ascii_lowercase());
+            digits += u8::from(byte.is_ascii_digit());
+            spaces += u8::from(byte.is_ascii_whitespace());
         }
-        stats.uppercase += (packed & 0xffff) as usize;
-        stats.lowercase += ((packed >> 16) & 0xffff) as usize;
-        stats.digits += ((packed >> 32) & 0xffff) as usize;
-        stats.non_space += (packed >> 48) as usize;
+        stats.uppercase += usize::from(uppercase);
+        stats.lowercase += usize::from(lowercase);
+        stats.digits += usize::from(digits);
+        stats.non_space += chunk.len() - usize::from(spaces);
     }
+    stats
+}
+
+/// False if lowercase ASCII `text` surely has no run longer than `max_run`
+/// (digits aside); true if it might. A run longer than `max_run >= 2` holds
+/// three equal bytes in a row, and one longer than 1 two. Written without
+/// early exit so that the compiler can vectorise it.
+fn may_have_long_run(text: &[u8], max_run: usize) -> bool {
+    let pairs = text.iter().zip(text.get(1..).unwrap_or_default());
+    if max_run <= 1 {
+        return pairs.fold(false, |found, (&a, &b)| {
+            found | ((a == b) & !a.is_ascii_digit())
+        });
+    }
+    pairs
+        .zip(text.get(2..).unwrap_or_default())
+        .fold(false, |found, ((&a, &b), &c)| {
+            found | ((a == b) & (b == c) & !a.is_ascii_digit())
+        })
+}
+
+/// Whether ASCII `bytes` has a run of one letter (case folded) longer than
+/// `max_run`, digits aside.
+fn has_long_run(bytes: &[u8], max_run: usize) -> bool {
     let mut last = 0u8;
     let mut run = 0usize;
-    let mut has_long_run = false;
     for &byte in bytes {
         let lower = byte.to_ascii_lowercase();
         if lower == last {
             run += 1;
-            has_long_run |= run > max_run && !lower.is_ascii_digit();
+            if run > max_run && !lower.is_ascii_digit() {
+                return true;
+            }
         } else {
             last = lower;
             run = 1;
         }
     }
-    if !has_long_run {
-        out.push_str(text);
-        out.make_ascii_lowercase();
+    false
+}
+
+/// The ASCII path. Text without runs to collapse (nearly all of it) is
+/// counted, copied and lowercased in bulk, and a quick scan of the copy
+/// shows that it has no such run; only text that might is checked byte by
+/// byte and, if need be, written again with its runs collapsed.
+fn normalize_ascii(text: &str, max_run: usize, out: &mut String) -> TextStats {
+    let bytes = text.as_bytes();
+    let stats = count_ascii(bytes);
+    out.push_str(text);
+    out.make_ascii_lowercase();
+    if !may_have_long_run(out.as_bytes(), max_run) || !has_long_run(bytes, max_run) {
         return stats;
     }
+    out.clear();
     out.reserve(bytes.len());
     let mut last = 0u8;
     let mut run = 0usize;
@@ -356,6 +373,53 @@ mod tests {
         assert_eq!(general_stats.lowercase, fast_stats.lowercase + 1);
         assert_eq!(general_stats.uppercase, fast_stats.uppercase);
         assert_eq!(general_stats.digits, fast_stats.digits);
+    }
+
+    /// The general path's folding, applied to every character.
+    fn fold_by_characters(text: &str, max_run: u8) -> (String, TextStats) {
+        let mut out = String::new();
+        let mut folder = Folder {
+            out: &mut out,
+            max_run: usize::from(max_run.max(1)),
+            last: None,
+            run: 0,
+            stats: TextStats::default(),
+        };
+        text.chars().for_each(|c| folder.push(c));
+        let stats = folder.stats;
+        (out, stats)
+    }
+
+    #[test]
+    fn ascii_runs_of_every_kind() {
+        for (text, max_run) in [
+            ("www.example.com", 3),
+            ("www.example.com", 2),
+            ("aa", 1),
+            ("aA", 1),
+            ("1111 ....", 3),
+            ("\0\0\0\0", 3),
+            ("NOOOO no", 3),
+            ("ab", 1),
+            ("", 1),
+            ("x", 16),
+        ] {
+            let mut fast = String::new();
+            let stats = normalize_into(text, max_run, &mut fast);
+            assert_eq!((fast, stats), fold_by_characters(text, max_run), "{text:?}");
+        }
+    }
+
+    proptest::proptest! {
+        #[test]
+        fn ascii_path_equals_folding_by_characters(
+            text in "([ -~\t\n\r\x0b\x0c]|aaaa|EEe|!!!!|0000){0,80}",
+            max_run in 1u8..=5,
+        ) {
+            let mut fast = String::new();
+            let stats = normalize_into(&text, max_run, &mut fast);
+            proptest::prop_assert_eq!((fast, stats), fold_by_characters(&text, max_run));
+        }
     }
 
     #[test]

@@ -121,28 +121,28 @@ impl<'a> Iterator for AsciiWords<'a> {
         let bytes = self.bytes;
         let len = bytes.len();
         loop {
-            while self.pos < len && !is_word_core(bytes[self.pos]) {
-                self.pos += 1;
-            }
-            if self.pos >= len {
-                return None;
-            }
-            let start = self.pos;
-            let mut has_alphanumeric = bytes[start] != b'_';
+            let start = self.pos
+                + bytes
+                    .get(self.pos..)?
+                    .iter()
+                    .position(|&byte| is_word_core(byte))?;
             let mut end = start + 1;
-            while end < len {
-                let byte = bytes[end];
-                if is_word_core(byte) {
-                    has_alphanumeric |= byte != b'_';
-                    end += 1;
-                } else if end + 1 < len && is_word_infix(byte, bytes[end - 1], bytes[end + 1]) {
+            loop {
+                end += bytes[end..]
+                    .iter()
+                    .position(|&byte| !is_word_core(byte))
+                    .unwrap_or(len - end);
+                if end + 1 < len && is_word_infix(bytes[end], bytes[end - 1], bytes[end + 1]) {
                     end += 1;
                 } else {
                     break;
                 }
             }
             self.pos = end;
-            if has_alphanumeric {
+            // A joining infix stands between letters or digits, so a word
+            // lacks them only if it is all `_`.
+            let word = &bytes[start..end];
+            if word.iter().any(|&byte| byte != b'_') {
                 return self.text.get(start..end).map(|word| (start, word));
             }
         }

@@ -172,8 +172,8 @@ proptest! {
         ][..]), 40..400),
         char_ngram in prop_oneof![Just(0u8), 2u8..=8],
     ) {
-        // Bodies over a few hundred bytes skip repeated words on the plain
-        // path only; both paths must still give the same indices.
+        // The plain path skips repeated words and pairs and reads the
+        // feature cache; both paths must still give the same indices.
         let msg = Message { body: Some(words.join(" ")), ..Message::default() };
         let settings = FeatureSettings { char_ngram, ..FeatureSettings::default() };
         let mut extractor = Extractor::new(settings, HashKey::from_bytes([3; 16]));
@@ -181,6 +181,37 @@ proptest! {
         let mut named: Vec<u32> = extractor.extract_named(&msg).iter().map(|feature| feature.index).collect();
         named.dedup();
         prop_assert_eq!(plain, named);
+    }
+
+    #[test]
+    fn a_warm_extractor_agrees_with_names_and_with_a_fresh_one(
+        stream in prop::collection::vec(
+            prop::collection::vec(prop::sample::select(&[
+                "the", "The", "offer", "free", "entry", "\u{00E9}t\u{00E9}", "2024", "win!!", "a",
+                "prize.example.com/x", "snake_case", "don't", "\u{65E5}\u{672C}", "x",
+                "supercalifragilisticexpialidocious",
+            ][..]), 0..200),
+            1..8,
+        ),
+        settings in settings(),
+    ) {
+        // One extractor keeps its feature cache from message to message;
+        // neither the explanation path nor a fresh extractor has one.
+        let key = HashKey::from_bytes([5; 16]);
+        let mut warm = Extractor::new(settings.clone(), key.clone());
+        for words in &stream {
+            let msg = Message {
+                subject: words.get(..3).map(|head| head.join(" ")),
+                body: Some(words.join(" ")),
+                ..Message::default()
+            };
+            let features = warm.extract_features(&msg);
+            let fresh = Extractor::new(settings.clone(), key.clone()).extract_features(&msg);
+            prop_assert_eq!(&features, &fresh);
+            let mut named: Vec<u32> = warm.extract_named(&msg).iter().map(|feature| feature.index).collect();
+            named.dedup();
+            prop_assert_eq!(features.indices().collect::<Vec<_>>(), named);
+        }
     }
 
     #[test]
