@@ -152,7 +152,8 @@ pub fn name_contributions(
     message: &Message,
     top: &[chaffgate_model::Contribution],
 ) -> Vec<Reason> {
-    let named = extractor.extract_named(message);
+    let wanted: Vec<u32> = top.iter().map(|c| c.index).collect();
+    let named = extractor.extract_named_for(message, &wanted);
     top.iter()
         .map(|contribution| {
             let names: Vec<&str> = named

@@ -342,6 +342,26 @@ impl Sink for NameSink {
     }
 }
 
+/// Names only the features whose index is wanted (the few an explanation
+/// shows), so explaining a long message formats a handful of names rather
+/// than all of them.
+struct WantedNameSink<'a> {
+    wanted: &'a [u32],
+    named: Vec<NamedFeature>,
+}
+
+impl Sink for WantedNameSink<'_> {
+    const NAMED: bool = true;
+
+    fn add(&mut self, index: u32, name: impl FnOnce(&mut String)) {
+        if self.wanted.contains(&index) {
+            let mut text = String::new();
+            name(&mut text);
+            self.named.push(NamedFeature { index, name: text });
+        }
+    }
+}
+
 /// Hashes features under one key into `2^bits` slots, with the state after
 /// each padded tag computed once.
 #[derive(Clone)]
@@ -466,6 +486,20 @@ impl Extractor {
         let mut sink = NameSink(Vec::new());
         self.walk(msg, &mut sink);
         let mut named = sink.0;
+        named.sort_unstable();
+        named.dedup();
+        named
+    }
+
+    /// Like [`Extractor::extract_named`], but only for features whose index
+    /// is in `wanted`: what an explanation of a few slots needs.
+    pub fn extract_named_for(&mut self, msg: &Message, wanted: &[u32]) -> Vec<NamedFeature> {
+        let mut sink = WantedNameSink {
+            wanted,
+            named: Vec::new(),
+        };
+        self.walk(msg, &mut sink);
+        let mut named = sink.named;
         named.sort_unstable();
         named.dedup();
         named
@@ -813,6 +847,28 @@ fn has_letter(word: &str) -> bool {
 
 #[cfg(test)]
 mod tests {
+
+    #[test]
+    fn named_for_wanted_indices_is_a_subset_of_all_names() {
+        let mut extractor =
+            Extractor::new(FeatureSettings::default(), HashKey::from_bytes([3; 16]));
+        let msg = Message {
+            subject: Some("Spring market stall".to_owned()),
+            body: Some("Please bring 12 crates of glazed bowls to the stall, thanks!".to_owned()),
+            sender: Some("Tomas <tomas@fibre-mill.example.com>".to_owned()),
+            ..Message::default()
+        };
+        let all = extractor.extract_named(&msg);
+        let wanted: Vec<u32> = all.iter().step_by(7).map(|n| n.index).collect();
+        let some = extractor.extract_named_for(&msg, &wanted);
+        let expected: Vec<NamedFeature> = all
+            .iter()
+            .filter(|n| wanted.contains(&n.index))
+            .cloned()
+            .collect();
+        assert_eq!(some, expected);
+        assert!(extractor.extract_named_for(&msg, &[]).is_empty());
+    }
     use super::*;
     use crate::hashing::feature_hash;
 
