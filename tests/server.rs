@@ -217,7 +217,26 @@ fn client_mistakes_get_4xx_with_stable_codes() {
             "{path}: {answer}"
         );
     }
-    // The server is still fine after all of that.
+    // Raw bytes that are not UTF-8 are a client mistake too.
+    let (status, answer) = server.post_bytes("/v1/score", b"{\"body\":\"\xff\xfe\"}");
+    assert_eq!(
+        (status, answer["error"]["code"].as_str()),
+        (400, Some("invalid_json"))
+    );
+    // The server is still fine after all of that, and counted it all.
+    let (status, metrics) = server.get("/metrics");
+    assert_eq!(status, 200);
+    let metrics = metrics.as_str().unwrap().to_owned();
+    assert!(
+        metrics.contains(
+            "chaffgate_http_request_duration_seconds_count{route=\"/v1/score\",status=\"400\"}"
+        ),
+        "{metrics}"
+    );
+    assert!(
+        metrics.contains("chaffgate_learner_lag_rows 0"),
+        "{metrics}"
+    );
     assert_eq!(
         server
             .post(

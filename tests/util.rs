@@ -188,6 +188,16 @@ impl TestServer {
         )
     }
 
+    /// Posts raw bytes as JSON.
+    pub fn post_bytes(&self, path: &str, body: &[u8]) -> (u16, serde_json::Value) {
+        Self::answer(
+            self.agent
+                .post(format!("{}{path}", self.base))
+                .header("content-type", "application/json")
+                .send(body),
+        )
+    }
+
     /// Posts with a content type of the caller's choice.
     pub fn post_as(&self, path: &str, content_type: &str, body: &str) -> (u16, serde_json::Value) {
         Self::answer(

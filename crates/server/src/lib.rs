@@ -20,7 +20,7 @@ pub mod state;
 use std::future::Future;
 use std::sync::Arc;
 
-use axum::extract::{DefaultBodyLimit, State};
+use axum::extract::{DefaultBodyLimit, MatchedPath, State};
 use axum::routing::{get, post};
 use axum::{Router, middleware};
 use chaffgate_store::Store;
@@ -116,13 +116,14 @@ pub fn app(state: AppState) -> Router {
         .route("/v1/model/rollback", post(routes::rollback))
         .route("/healthz", get(routes::healthz))
         .route("/readyz", get(routes::readyz))
-        .route("/metrics", get(metrics_text))
+        .route("/metrics", get(routes::metrics_text))
         .fallback(routes::not_found)
         .layer(middleware::from_fn_with_state(
             state.clone(),
             auth::authenticate,
         ))
         .layer(DefaultBodyLimit::max(max_body_bytes))
+        .layer(middleware::from_fn_with_state(state.clone(), track))
         .with_state(state)
 }
 
@@ -141,8 +142,23 @@ async fn purge_expired_inputs(store: Store) {
     }
 }
 
-async fn metrics_text(State(state): State<AppState>) -> String {
-    state.metrics().render()
+/// Records each request's route, status and time to answer.
+async fn track(
+    State(state): State<AppState>,
+    request: axum::extract::Request,
+    next: middleware::Next,
+) -> axum::response::Response {
+    let route = request
+        .extensions()
+        .get::<MatchedPath>()
+        .map(|path| path.as_str().to_owned())
+        .unwrap_or_else(|| "unmatched".to_owned());
+    let started = std::time::Instant::now();
+    let response = next.run(request).await;
+    state
+        .metrics()
+        .observe_request(&route, response.status().as_u16(), started.elapsed());
+    response
 }
 
 /// Serves until `shutdown` resolves, then lets in-flight requests finish

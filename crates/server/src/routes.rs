@@ -17,6 +17,7 @@ use crate::audit::AuditJob;
 use crate::auth::Caller;
 use crate::error::{ApiError, ApiJson, ApiPath, ApiQuery};
 use crate::judge::Reason;
+use crate::metrics::LearnerGauges;
 use crate::settings::AckMode;
 use crate::state::{AppState, now_ms};
 
@@ -549,21 +550,51 @@ pub struct ModelView {
     top_fine: Vec<WeightView>,
 }
 
-/// `GET /v1/model`
-pub async fn model(State(state): State<AppState>) -> Result<ApiJson<ModelView>, ApiError> {
-    let snapshot = state.judge().snapshot();
+/// The learner's progress against the feedback log.
+pub async fn learner_gauges(state: &AppState) -> Result<LearnerGauges, ApiError> {
+    let model_seq = state.judge().snapshot().model_seq;
     let committed_seq = state.store().last_feedback_seq().await?.0;
-    let model_seq = snapshot.model_seq;
-    let learner_lag_rows = (committed_seq - model_seq).max(0);
-    let learner_lag_ms = if learner_lag_rows > 0 {
-        let next = chaffgate_store::FeedbackSeq(model_seq + 1);
-        match state.store().feedback(next).await? {
+    let lag_ms = if committed_seq > model_seq {
+        // The oldest row not learnt yet (revoked rows are skipped).
+        let waiting = state
+            .store()
+            .feedback_after(chaffgate_store::FeedbackSeq(model_seq), 1)
+            .await?;
+        match waiting.first() {
             Some(row) => (now_ms() - row.created_at_ms).max(0),
             None => 0,
         }
     } else {
         0
     };
+    Ok(LearnerGauges {
+        model_seq,
+        committed_seq,
+        lag_ms,
+    })
+}
+
+/// `GET /metrics`
+pub async fn metrics_text(State(state): State<AppState>) -> Result<Response, ApiError> {
+    let gauges = learner_gauges(&state).await?;
+    let body = state.metrics().render(gauges);
+    let content_type = [(
+        axum::http::header::CONTENT_TYPE,
+        "text/plain; version=0.0.4; charset=utf-8",
+    )];
+    Ok((content_type, body).into_response())
+}
+
+/// `GET /v1/model`
+pub async fn model(State(state): State<AppState>) -> Result<ApiJson<ModelView>, ApiError> {
+    let snapshot = state.judge().snapshot();
+    let LearnerGauges {
+        model_seq: _,
+        committed_seq,
+        lag_ms: learner_lag_ms,
+    } = learner_gauges(&state).await?;
+    let model_seq = snapshot.model_seq;
+    let learner_lag_rows = (committed_seq - model_seq).max(0);
     let checkpoints = state
         .store()
         .list_checkpoints()
