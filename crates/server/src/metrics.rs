@@ -8,8 +8,8 @@
 
 use std::collections::BTreeMap;
 use std::fmt::Write;
-use std::sync::Mutex;
 use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::{Arc, Mutex, RwLock};
 use std::time::Duration;
 
 use chaffgate_store::{Label, Verdict};
@@ -73,6 +73,47 @@ impl Histogram {
     }
 }
 
+/// A request latency histogram updated with atomics only, so that the
+/// request path never waits on a lock once its series exists.
+struct AtomicLatency {
+    counts: [AtomicU64; LATENCY_BUCKETS.len()],
+    count: AtomicU64,
+    sum_us: AtomicU64,
+}
+
+impl AtomicLatency {
+    fn new() -> AtomicLatency {
+        AtomicLatency {
+            counts: std::array::from_fn(|_| AtomicU64::new(0)),
+            count: AtomicU64::new(0),
+            sum_us: AtomicU64::new(0),
+        }
+    }
+
+    fn observe(&self, elapsed: Duration) {
+        let seconds = elapsed.as_secs_f64();
+        if let Some(at) = LATENCY_BUCKETS.iter().position(|bound| seconds <= *bound) {
+            self.counts[at].fetch_add(1, Ordering::Relaxed);
+        }
+        self.count.fetch_add(1, Ordering::Relaxed);
+        let micros = u64::try_from(elapsed.as_micros()).unwrap_or(u64::MAX);
+        self.sum_us.fetch_add(micros, Ordering::Relaxed);
+    }
+
+    fn snapshot(&self) -> Histogram {
+        Histogram {
+            bounds: &LATENCY_BUCKETS,
+            counts: self
+                .counts
+                .iter()
+                .map(|c| c.load(Ordering::Relaxed))
+                .collect(),
+            count: self.count.load(Ordering::Relaxed),
+            sum: self.sum_us.load(Ordering::Relaxed) as f64 / 1e6,
+        }
+    }
+}
+
 /// Learner figures read at render time.
 #[derive(Debug, Clone, Copy, Default)]
 pub struct LearnerGauges {
@@ -88,7 +129,7 @@ pub struct Metrics {
     feedback_junk: AtomicU64,
     feedback_fine: AtomicU64,
     /// (route, status) -> latency histogram.
-    requests: Mutex<BTreeMap<(String, u16), Histogram>>,
+    requests: RwLock<BTreeMap<(String, u16), Arc<AtomicLatency>>>,
     audit_commit: Mutex<Histogram>,
     audit_batch_rows: Mutex<Histogram>,
 }
@@ -101,7 +142,7 @@ impl Default for Metrics {
             verdict_fine: AtomicU64::new(0),
             feedback_junk: AtomicU64::new(0),
             feedback_fine: AtomicU64::new(0),
-            requests: Mutex::new(BTreeMap::new()),
+            requests: RwLock::new(BTreeMap::new()),
             audit_commit: Mutex::new(Histogram::new(&LATENCY_BUCKETS)),
             audit_batch_rows: Mutex::new(Histogram::new(&BATCH_BUCKETS)),
         }
@@ -134,11 +175,28 @@ impl Metrics {
     }
 
     pub fn observe_request(&self, route: &str, status: u16, elapsed: Duration) {
-        let mut requests = lock(&self.requests);
-        requests
-            .entry((route.to_owned(), status))
-            .or_insert_with(|| Histogram::new(&LATENCY_BUCKETS))
-            .observe(elapsed.as_secs_f64());
+        let series = {
+            let requests = match self.requests.read() {
+                Ok(requests) => requests,
+                Err(poisoned) => poisoned.into_inner(),
+            };
+            requests.get(&(route.to_owned(), status)).cloned()
+        };
+        let series = match series {
+            Some(series) => series,
+            None => {
+                let mut requests = match self.requests.write() {
+                    Ok(requests) => requests,
+                    Err(poisoned) => poisoned.into_inner(),
+                };
+                Arc::clone(
+                    requests
+                        .entry((route.to_owned(), status))
+                        .or_insert_with(|| Arc::new(AtomicLatency::new())),
+                )
+            }
+        };
+        series.observe(elapsed);
     }
 
     pub fn count_audit_batch(&self, figures: BatchFigures) {
@@ -193,9 +251,22 @@ impl Metrics {
             "# HELP chaffgate_http_request_duration_seconds Time to answer, by route and status.\n\
              # TYPE chaffgate_http_request_duration_seconds histogram"
         );
-        for ((route, status), histogram) in lock(&self.requests).iter() {
+        let series: Vec<((String, u16), Arc<AtomicLatency>)> = match self.requests.read() {
+            Ok(requests) => requests
+                .iter()
+                .map(|(k, v)| (k.clone(), Arc::clone(v)))
+                .collect(),
+            Err(poisoned) => poisoned
+                .into_inner()
+                .iter()
+                .map(|(k, v)| (k.clone(), Arc::clone(v)))
+                .collect(),
+        };
+        for ((route, status), latency) in series {
             let labels = format!("route=\"{route}\",status=\"{status}\",");
-            histogram.render(&mut out, "chaffgate_http_request_duration_seconds", &labels);
+            latency
+                .snapshot()
+                .render(&mut out, "chaffgate_http_request_duration_seconds", &labels);
         }
         let _ = writeln!(
             out,
