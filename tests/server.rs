@@ -312,15 +312,24 @@ fn kill_9_after_acknowledged_feedback_then_restart_equals_rebuild() {
     assert_eq!(model["model_seq"], 12);
     assert!(server.stop(), "clean exit writes a shutdown checkpoint");
 
-    // `rebuild` reads ./data (the default data_dir) in the same folder.
-    let out = chaffgate(dir.path(), &["rebuild", "--out", "rebuilt.cgm"], "");
+    assert_rebuild_matches(dir.path(), 12);
+}
+
+/// Runs `chaffgate rebuild` on the data folder in `dir` (the default
+/// `./data`) and checks it replayed `rows` rows into a model identical to
+/// the newest checkpoint.
+fn assert_rebuild_matches(dir: &std::path::Path, rows: usize) {
+    let out = chaffgate(dir, &["rebuild", "--out", "rebuilt.cgm"], "");
     let text = stdout(&out);
     assert!(
         out.status.success(),
         "{text}\n{}",
         crate::util::stderr(&out)
     );
-    assert!(text.contains("rebuilt from 12 feedback rows"), "{text}");
+    assert!(
+        text.contains(&format!("rebuilt from {rows} feedback rows")),
+        "{text}"
+    );
     assert!(text.contains("bit for bit"), "{text}");
 }
 
@@ -475,15 +484,7 @@ fn rollback_serves_a_checkpoint_and_unlearns_later_feedback() {
     assert_eq!(feedback(&server, id, "fine").1["seq"], 5);
     wait_learnt_to(&server, 5);
     assert!(server.stop());
-    let out = chaffgate(dir.path(), &["rebuild", "--out", "rebuilt.cgm"], "");
-    let text = stdout(&out);
-    assert!(
-        out.status.success(),
-        "{text}\n{}",
-        crate::util::stderr(&out)
-    );
-    assert!(text.contains("rebuilt from 3 feedback rows"), "{text}");
-    assert!(text.contains("bit for bit"), "{text}");
+    assert_rebuild_matches(dir.path(), 3);
 }
 
 /// Waits until the model includes feedback up to `seq`.

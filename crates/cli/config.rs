@@ -13,6 +13,7 @@ use std::path::{Path, PathBuf};
 
 use anyhow::{Context, bail};
 use chaffgate_model::UpdateRule;
+use chaffgate_server::Thresholds;
 use chaffgate_text::FeatureSettings;
 use serde::{Deserialize, Serialize};
 
@@ -253,33 +254,12 @@ impl Default for ChannelConfig {
     }
 }
 
-/// The three verdicts, lowercase on the wire.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "lowercase")]
-pub enum Verdict {
-    Junk,
-    Review,
-    Fine,
-}
-
-impl fmt::Display for Verdict {
-    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
-        match self {
-            Verdict::Junk => f.write_str("junk"),
-            Verdict::Review => f.write_str("review"),
-            Verdict::Fine => f.write_str("fine"),
-        }
-    }
-}
-
 impl ChannelConfig {
-    pub fn verdict(&self, p_junk: f64) -> Verdict {
-        if p_junk >= self.junk_threshold {
-            Verdict::Junk
-        } else if p_junk >= self.review_threshold {
-            Verdict::Review
-        } else {
-            Verdict::Fine
+    /// The typed thresholds the verdict is computed from.
+    pub fn thresholds(&self) -> Thresholds {
+        Thresholds {
+            junk: self.junk_threshold,
+            review: self.review_threshold,
         }
     }
 }
@@ -312,9 +292,15 @@ impl Config {
         let mut table: toml::Table =
             toml::from_str(&text).with_context(|| format!("parsing config {origin}"))?;
         apply_env_overrides(&mut table, env)?;
-        let config: Config = toml::Value::Table(table)
+        let mut config: Config = toml::Value::Table(table)
             .try_into()
             .with_context(|| format!("reading config {origin} (with environment overrides)"))?;
+        // A file that names only its own channels keeps the default
+        // channel's thresholds for everything else.
+        config
+            .channels
+            .entry(DEFAULT_CHANNEL.to_owned())
+            .or_default();
         config.validate()?;
         Ok(config)
     }
@@ -593,14 +579,14 @@ mod tests {
     }
 
     #[test]
-    fn verdicts_follow_thresholds() {
-        let channel = ChannelConfig {
-            junk_threshold: 0.9,
-            review_threshold: 0.4,
-        };
-        assert_eq!(channel.verdict(0.95), Verdict::Junk);
-        assert_eq!(channel.verdict(0.9), Verdict::Junk);
-        assert_eq!(channel.verdict(0.5), Verdict::Review);
-        assert_eq!(channel.verdict(0.1), Verdict::Fine);
+    fn channel_lookup_falls_back_to_default() {
+        let config = load_str(
+            "[channels.tickets]\njunk_threshold = 0.99\nreview_threshold = 0.5\n",
+            &[],
+        )
+        .unwrap();
+        assert_eq!(config.channel(Some("tickets")).thresholds().junk, 0.99);
+        assert_eq!(config.channel(Some("comments")).thresholds().junk, 0.9);
+        assert_eq!(config.channel(None).thresholds().review, 0.4);
     }
 }

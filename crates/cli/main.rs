@@ -345,10 +345,13 @@ fn score(config: &Config, args: ScoreArgs) -> anyhow::Result<()> {
         bail!("the message has no subject, body, sender or meta: nothing to score");
     }
     let p_junk = pipeline.score(&message);
-    let verdict = config.channel(message.channel.as_deref()).verdict(p_junk);
+    let verdict = config
+        .channel(message.channel.as_deref())
+        .thresholds()
+        .verdict(p_junk);
     let reasons = pipeline.reasons(&message, args.reasons);
     if args.json {
-        let out = serde_json::json!({ "p_junk": p_junk, "verdict": verdict, "reasons": reasons });
+        let out = serde_json::json!({ "p_junk": p_junk, "verdict": verdict.as_str(), "reasons": reasons });
         println!("{}", serde_json::to_string_pretty(&out)?);
     } else {
         println!("p_junk   {p_junk:.4}\nverdict  {verdict}\nreasons");

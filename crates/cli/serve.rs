@@ -43,13 +43,7 @@ pub fn server_settings(config: &Config) -> anyhow::Result<ServerSettings> {
         .listen
         .parse()
         .with_context(|| format!("server.listen = {:?}", config.server.listen))?;
-    let thresholds = |name: &str| {
-        let channel = config.channel(Some(name));
-        Thresholds {
-            junk: channel.junk_threshold,
-            review: channel.review_threshold,
-        }
-    };
+    let thresholds = |name: &str| config.channel(Some(name)).thresholds();
     let by_name: BTreeMap<String, Thresholds> = config
         .channels
         .keys()

@@ -24,6 +24,7 @@ use chaffgate_store::{Role, Store};
 use sha2::{Digest, Sha256};
 
 use crate::error::ApiError;
+use crate::judge::lower_hex;
 use crate::state::AppState;
 
 /// How often the token table is re-read.
@@ -79,13 +80,7 @@ impl TokenBook {
 
 /// Lowercase hex SHA-256 of a token secret, as stored.
 pub fn token_digest(secret: &str) -> String {
-    let digest = Sha256::digest(secret.as_bytes());
-    let mut hex = String::with_capacity(64);
-    for byte in digest.iter() {
-        hex.push(char::from_digit(u32::from(byte >> 4), 16).unwrap_or('0'));
-        hex.push(char::from_digit(u32::from(byte & 0x0f), 16).unwrap_or('0'));
-    }
-    hex
+    lower_hex(&Sha256::digest(secret.as_bytes()))
 }
 
 /// Whether `role` may act where `needed` is required.

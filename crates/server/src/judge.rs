@@ -201,9 +201,13 @@ pub fn content_digest(extractor: &mut Extractor, message: &Message) -> String {
         hasher.update(value.as_bytes());
         hasher.update([0x1e]);
     }
-    let digest = hasher.finalize();
-    let mut hex = String::with_capacity(64);
-    for byte in digest.iter() {
+    lower_hex(&hasher.finalize())
+}
+
+/// Lowercase hex of a digest, as the database stores digests.
+pub fn lower_hex(bytes: &[u8]) -> String {
+    let mut hex = String::with_capacity(bytes.len() * 2);
+    for byte in bytes {
         hex.push(char::from_digit(u32::from(byte >> 4), 16).unwrap_or('0'));
         hex.push(char::from_digit(u32::from(byte & 0x0f), 16).unwrap_or('0'));
     }
