@@ -26,9 +26,9 @@
 //!
 //! Nesterov's accelerated gradient method with constant step `1/L` and
 //! constant momentum `(sqrt(L) - sqrt(mu)) / (sqrt(L) + sqrt(mu))` for an
-//! `L`-smooth, `mu`-strongly convex function (Nesterov, "Introductory
-//! Lectures on Convex Optimization", 2004, section 2.2.1, constant step
-//! scheme for strongly convex functions), with `mu = l2`. The log loss has
+//! `L`-smooth, `mu`-strongly convex function (Y. Nesterov's 2004 textbook
+//! on convex optimization, Kluwer, section 2.2.1, constant step scheme for
+//! strongly convex functions), with `mu = l2`. The log loss has
 //! second derivative `p (1 - p) <= 1/4`, so the Hessian of `J` is at most
 //! `X^T X / (4N) + l2 I`, and `||X||_2^2 <= ||X||_1 ||X||_inf` (the largest
 //! column sum of `|x|` times the largest row sum; Golub and Van Loan,
