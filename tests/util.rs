@@ -21,7 +21,9 @@ pub fn sms_corpus() -> PathBuf {
         "{} is missing: set CHAFFGATE_CORPORA to the folder holding sms-spam-collection/",
         path.display()
     );
-    path
+    // The binary runs in a temporary folder, so a relative path would not
+    // resolve there.
+    std::fs::canonicalize(&path).expect("absolute corpus path")
 }
 
 /// Runs `chaffgate` with `args` in `dir`, feeding `stdin`.
