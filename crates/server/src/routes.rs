@@ -587,14 +587,13 @@ pub async fn metrics_text(State(state): State<AppState>) -> Result<Response, Api
 
 /// `GET /v1/model`
 pub async fn model(State(state): State<AppState>) -> Result<ApiJson<ModelView>, ApiError> {
-    let snapshot = state.judge().snapshot();
+    // Database reads first: a held snapshot keeps the learner waiting to
+    // reclaim its copy, so it is taken only for the synchronous part below.
     let LearnerGauges {
-        model_seq: _,
         committed_seq,
         lag_ms: learner_lag_ms,
+        ..
     } = learner_gauges(&state).await?;
-    let model_seq = snapshot.model_seq;
-    let learner_lag_rows = (committed_seq - model_seq).max(0);
     let checkpoints = state
         .store()
         .list_checkpoints()
@@ -609,6 +608,9 @@ pub async fn model(State(state): State<AppState>) -> Result<ApiJson<ModelView>, 
             reason: row.reason,
         })
         .collect();
+    let snapshot = state.judge().snapshot();
+    let model_seq = snapshot.model_seq;
+    let learner_lag_rows = (committed_seq - model_seq).max(0);
     let (top_junk, top_fine) = snapshot.model.top_weights(10);
     let name = |(index, weight): (u32, f64)| WeightView {
         feature: state
