@@ -11,10 +11,10 @@ use std::path::PathBuf;
 
 use anyhow::{Context, bail};
 use chaffgate_model::Model;
-use chaffgate_server::learner::apply_rows;
+use chaffgate_server::learner::{examples_from_rows, learn_examples};
 use chaffgate_server::model_file::{LoadedModel, load_model_file, save_model_file};
 use chaffgate_store::{FeedbackSeq, Store};
-use chaffgate_text::{Extractor, Features};
+use chaffgate_text::Extractor;
 
 use crate::config::Config;
 use crate::serve::{CHECKPOINT_DIR, DATABASE_FILE};
@@ -46,7 +46,6 @@ pub async fn run(config: &Config, options: RebuildOptions) -> anyhow::Result<()>
 
     let mut model = Model::new(live.bits(), live.rule()).context("creating a fresh model")?;
     let mut extractor = Extractor::new(settings.clone(), key.clone());
-    let mut features = Features::default();
     let mut after = FeedbackSeq::ZERO;
     let mut rows_applied: u64 = 0;
     loop {
@@ -55,7 +54,7 @@ pub async fn run(config: &Config, options: RebuildOptions) -> anyhow::Result<()>
             break;
         };
         after = last.seq;
-        apply_rows(&mut model, &mut extractor, &mut features, &rows);
+        learn_examples(&mut model, &examples_from_rows(&mut extractor, &rows));
         rows_applied += rows.len() as u64;
     }
     store.close().await;

@@ -144,7 +144,7 @@ pub enum RollbackError {
 }
 
 /// One row turned into what the update needs.
-struct Example {
+pub struct Example {
     x: Vec<(u32, f32)>,
     is_junk: bool,
 }
@@ -163,17 +163,26 @@ pub fn row_message(row: &FeedbackRow) -> Message {
     }
 }
 
-/// Applies rows to a model, in order: the one place feedback becomes
-/// weight changes (used by the live learner and by `rebuild`).
-pub fn apply_rows(
-    model: &mut Model,
-    extractor: &mut Extractor,
-    features: &mut Features,
-    rows: &[FeedbackRow],
-) {
-    for row in rows {
-        extractor.extract(&row_message(row), features);
-        model.learn(features.as_slice(), row.label == Label::Junk);
+/// Turns feedback rows into examples, in order.
+pub fn examples_from_rows(extractor: &mut Extractor, rows: &[FeedbackRow]) -> Vec<Example> {
+    let mut features = Features::default();
+    rows.iter()
+        .map(|row| {
+            extractor.extract(&row_message(row), &mut features);
+            Example {
+                x: features.as_slice().to_vec(),
+                is_junk: row.label == Label::Junk,
+            }
+        })
+        .collect()
+}
+
+/// Applies examples to a model, in order: the one place feedback becomes
+/// weight changes (used by the live learner on both its copies and by
+/// `rebuild`).
+pub fn learn_examples(model: &mut Model, examples: &[Example]) {
+    for example in examples {
+        model.learn(&example.x, example.is_junk);
     }
 }
 
@@ -283,24 +292,15 @@ impl Learner {
     /// Left-right step: update the back copy, publish it, reclaim the old
     /// front once no scorer holds it, and update that too.
     async fn apply_and_publish(&mut self, rows: &[FeedbackRow], last_seq: i64) {
-        let mut examples = Vec::with_capacity(rows.len());
-        let mut features = Features::default();
+        let examples = examples_from_rows(&mut self.extractor, rows);
         for row in rows {
-            let message = row_message(row);
-            self.extractor.extract(&message, &mut features);
-            examples.push(Example {
-                x: features.as_slice().to_vec(),
-                is_junk: row.label == Label::Junk,
-            });
             self.status
-                .remember_names(self.extractor.extract_named(&message));
+                .remember_names(self.extractor.extract_named(&row_message(row)));
         }
         let Some(mut back) = self.back.take() else {
             return;
         };
-        for example in &examples {
-            back.learn(&example.x, example.is_junk);
-        }
+        learn_examples(&mut back, &examples);
         let published = Arc::new(Snapshot {
             model: back,
             model_seq: last_seq,
@@ -316,9 +316,7 @@ impl Learner {
                 }
             }
         };
-        for example in &examples {
-            model.learn(&example.x, example.is_junk);
-        }
+        learn_examples(&mut model, &examples);
         self.back = Some(model);
         self.applied_seq = last_seq;
         self.status.applied_seq.store(last_seq, Ordering::Release);
