@@ -68,8 +68,32 @@ pub enum MetricsError {
         missing: Class,
     },
 
+    /// One of two compared score samples (the baseline and current
+    /// `p_junk` of a population stability index) has no messages.
+    #[error("{sample} has no messages")]
+    EmptySample {
+        /// Which sample: `"baseline"` or `"current"`.
+        sample: &'static str,
+    },
+
+    /// A score in one of two compared samples is NaN, infinite, or outside
+    /// the range the bins cover.
+    #[error("{sample}[{index}] = {value}: must be {allowed}")]
+    SampleValue {
+        /// Which sample: `"baseline"` or `"current"`.
+        sample: &'static str,
+        /// Position of the first offending score in that sample.
+        index: usize,
+        /// The score itself.
+        value: f64,
+        /// What is allowed, in words.
+        allowed: &'static str,
+    },
+
     /// A parameter other than the scores is out of its range: a threshold
-    /// that is not finite, or a rate outside `[0, 1]` (NaN included).
+    /// that is not finite, a rate outside `[0, 1]` (NaN included), a bin
+    /// count of zero or above the limit, bin edges that do not increase,
+    /// or a change-detector setting out of range.
     #[error("{name} = {value}: must be {allowed}")]
     InvalidParameter {
         /// The parameter's name as in the function signature.

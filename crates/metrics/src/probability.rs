@@ -69,19 +69,36 @@ fn count(n: usize) -> f64 {
 
 /// Neumaier's improved Kahan summation: carries the low-order bits lost by
 /// each addition and adds them back at the end.
-fn compensated_sum(terms: impl Iterator<Item = f64>) -> f64 {
-    let mut sum = 0.0_f64;
-    let mut carry = 0.0_f64;
+pub(crate) fn compensated_sum(terms: impl Iterator<Item = f64>) -> f64 {
+    let mut acc = CompensatedSum::default();
     for term in terms {
-        let next = sum + term;
-        if sum.abs() >= term.abs() {
-            carry += (sum - next) + term;
-        } else {
-            carry += (term - next) + sum;
-        }
-        sum = next;
+        acc.add(term);
     }
-    sum + carry
+    acc.total()
+}
+
+/// A running Neumaier sum, for when terms arrive into several sums at once
+/// (one per calibration bin).
+#[derive(Debug, Clone, Copy, Default)]
+pub(crate) struct CompensatedSum {
+    sum: f64,
+    carry: f64,
+}
+
+impl CompensatedSum {
+    pub(crate) fn add(&mut self, term: f64) {
+        let next = self.sum + term;
+        if self.sum.abs() >= term.abs() {
+            self.carry += (self.sum - next) + term;
+        } else {
+            self.carry += (term - next) + self.sum;
+        }
+        self.sum = next;
+    }
+
+    pub(crate) fn total(&self) -> f64 {
+        self.sum + self.carry
+    }
 }
 
 #[cfg(test)]

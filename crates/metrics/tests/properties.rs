@@ -6,8 +6,8 @@
 //! possible.
 
 use chaffgate_metrics::{
-    MetricsError, brier_score, confusion, junk_recall_at_false_junk_rate, lam_pct, log_loss,
-    roc_auc, summarize,
+    Direction, MetricsError, PageHinkley, PageHinkleyParams, ScoreBins, brier_score, calibration,
+    confusion, junk_recall_at_false_junk_rate, lam_pct, log_loss, psi, roc_auc, summarize,
 };
 use proptest::prelude::*;
 
@@ -182,5 +182,99 @@ proptest! {
             prop_assert!(roc_auc(&p, &y).is_err());
             prop_assert!(summarize(&p, &y, 0.5).is_err());
         }
+    }
+
+    #[test]
+    fn psi_is_finite_non_negative_and_symmetric(
+        baseline in prop::collection::vec(0.0f64..=1.0, 1..80),
+        current in prop::collection::vec(0.0f64..=1.0, 1..80),
+        n_bins in 1usize..40,
+    ) {
+        // Each term (c - b) ln(c / b) is >= 0 since both factors share a
+        // sign; swapping the samples flips both. From the definition.
+        let bins = ScoreBins::uniform(n_bins).unwrap();
+        let forward = psi(&baseline, &current, &bins).unwrap();
+        prop_assert!(forward.psi.is_finite() && forward.psi >= 0.0, "psi = {psi}", psi = forward.psi);
+        for bin in &forward.bins {
+            prop_assert!(bin.contribution.is_finite() && bin.contribution >= 0.0);
+        }
+        let backward = psi(&current, &baseline, &bins).unwrap().psi;
+        prop_assert!((forward.psi - backward).abs() <= 1e-12 * forward.psi.max(1.0));
+        let counted: u64 = forward.bins.iter().map(|b| b.current_count).sum();
+        prop_assert_eq!(counted, current.len() as u64);
+    }
+
+    #[test]
+    fn ece_lies_in_zero_one_and_matches_the_definition(
+        (p, y) in labelled_scores(),
+        n_bins in 1usize..40,
+    ) {
+        let table = calibration(&p, &y, n_bins).unwrap();
+        prop_assert!((0.0..=1.0).contains(&table.ece), "ece = {ece}", ece = table.ece);
+        // Brute force: the weighted gap, bin by bin, straight from the
+        // definition (Guo et al., ICML 2017, eq. 3).
+        let n = p.len() as f64;
+        let mut ece = 0.0;
+        for bin in &table.bins {
+            let members: Vec<(f64, bool)> = p
+                .iter()
+                .zip(&y)
+                .filter(|(p, _)| {
+                    **p >= bin.lower && (**p < bin.upper || (bin.upper == 1.0 && **p == 1.0))
+                })
+                .map(|(p, y)| (*p, *y))
+                .collect();
+            prop_assert_eq!(members.len() as u64, bin.count);
+            if members.is_empty() {
+                continue;
+            }
+            let k = members.len() as f64;
+            let mean = members.iter().map(|m| m.0).sum::<f64>() / k;
+            let rate = members.iter().filter(|m| m.1).count() as f64 / k;
+            ece += k / n * (rate - mean).abs();
+        }
+        prop_assert!((table.ece - ece).abs() < 1e-12, "ece {got} vs {ece}", got = table.ece);
+    }
+
+    #[test]
+    fn page_hinkley_never_panics(
+        stream in prop::collection::vec(
+            prop_oneof![
+                4 => -1e6f64..1e6,
+                1 => any::<f64>(),
+                1 => Just(f64::MAX),
+                1 => Just(f64::NAN),
+            ],
+            0..300,
+        ),
+        delta in 0.0f64..1.0,
+        lambda in 1e-3f64..100.0,
+        min_samples in 0u64..50,
+        direction in prop::sample::select(vec![
+            Direction::Increase,
+            Direction::Decrease,
+            Direction::Either,
+        ]),
+    ) {
+        let params = PageHinkleyParams { delta, lambda, min_samples, direction };
+        let mut detector = PageHinkley::new(params).unwrap();
+        let mut twin = PageHinkley::new(params).unwrap();
+        let is_bounded = stream.iter().all(|x| !x.is_finite() || x.abs() < 1e6);
+        for &x in &stream {
+            let fired = detector.update(x);
+            // Deterministic: the same samples give the same answers.
+            prop_assert_eq!(fired, twin.update(x));
+            if fired {
+                prop_assert!(detector.samples() >= min_samples);
+            }
+            if is_bounded {
+                let statistic = detector.statistic();
+                prop_assert!(statistic.is_finite() && statistic >= 0.0, "{statistic}");
+            }
+        }
+        let finite = stream.iter().filter(|x| x.is_finite()).count() as u64;
+        prop_assert_eq!(detector.samples(), finite);
+        detector.reset();
+        prop_assert_eq!(detector.statistic(), 0.0);
     }
 }
