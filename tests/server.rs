@@ -497,3 +497,41 @@ fn wait_learnt_to(server: &TestServer, seq: i64) {
     }
     panic!("the model never reached seq {seq}");
 }
+
+#[test]
+fn raw_mail_is_scored_and_learnt_like_any_message() {
+    let dir = tempfile::tempdir().unwrap();
+    let server = TestServer::start_in(dir.path(), &[]);
+    let mail = "From: Prize Desk <draw@lucky-draw.example.net>\r\n\
+                Reply-To: claims@elsewhere.example.org\r\n\
+                Subject: =?UTF-8?Q?Claim_your_prize_now?=\r\n\
+                MIME-Version: 1.0\r\n\
+                Content-Type: text/html; charset=utf-8\r\n\
+                \r\n\
+                <p>You won 5000 EUR. <a href=\"http://lucky-draw.example.net/claim\">www.coop-shop.example.com</a></p>\r\n";
+    let body = json!({ "raw": mail, "channel": "mail" }).to_string();
+    let (status, decision) = server.post("/v1/score", &body);
+    assert_eq!(status, 200, "{decision}");
+    let id = decision["decision_id"].as_str().unwrap().to_owned();
+    assert_eq!(feedback(&server, &id, "junk").0, 201);
+    wait_learnt(&server);
+    let (_, again) = server.post("/v1/score", &body);
+    assert!(p_junk(&again) > 0.5, "{again}");
+    let features: Vec<&str> = again["reasons"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|r| r["feature"].as_str().unwrap())
+        .collect();
+    // The header facts reach the model as meta features.
+    assert!(features.iter().any(|f| f.contains("mail.")), "{features:?}");
+
+    let encoded = json!({ "raw_b64": "not base64!" }).to_string();
+    let (status, answer) = server.post("/v1/score", &encoded);
+    assert_eq!(
+        (status, answer["error"]["code"].as_str()),
+        (422, Some("invalid_message"))
+    );
+    let both = json!({ "raw": mail, "raw_b64": "AAAA" }).to_string();
+    assert_eq!(server.post("/v1/score", &both).0, 422);
+}

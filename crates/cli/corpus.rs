@@ -1,5 +1,8 @@
 //! Labelled corpora: JSONL message objects or two-column `LABEL<TAB>TEXT` files.
 //!
+//! A JSONL line may carry a raw mail (`raw` or `raw_b64`) instead of, or
+//! beside, the message fields; it is parsed as the daemon parses one.
+//!
 //! A corpus's own label words are translated here and go no further:
 //! `spam`/`ham` (as in the SMS Spam Collection) become `junk`/`fine`.
 //! A malformed line stops loading with its line number and what is wrong,
@@ -9,6 +12,7 @@ use std::fmt;
 use std::path::Path;
 
 use anyhow::{Context, bail};
+use chaffgate_mail::{MailLimits, MessageInput};
 use chaffgate_text::Message;
 
 /// One message with the label a person gave it.
@@ -155,8 +159,11 @@ fn parse_jsonl_line(line: &str) -> Result<Labelled, String> {
         None => return Err("missing \"label\"".to_owned()),
     };
     let is_junk = parse_label(&label)?;
-    let message: Message = serde_json::from_value(serde_json::Value::Object(object))
+    let input: MessageInput = serde_json::from_value(serde_json::Value::Object(object))
         .map_err(|err| format!("not a message: {err}"))?;
+    let (message, _cuts) = input
+        .into_message(&MailLimits::default())
+        .map_err(|err| err.to_string())?;
     if message.is_empty() {
         return Err("the message has no subject, body, sender or meta".to_owned());
     }
@@ -211,6 +218,18 @@ mod tests {
         assert_eq!(corpus.items.len(), 2);
         assert_eq!(corpus.items[0].message.subject.as_deref(), Some("Order 12"));
         assert!(corpus.items[1].is_junk);
+    }
+
+    #[test]
+    fn jsonl_reads_raw_mail() {
+        let mail =
+            "From: Ines <ines@customer.example.org>\r\nSubject: Order 12\r\n\r\nWhere is it?\r\n";
+        let line = serde_json::json!({ "raw": mail, "label": "fine" }).to_string();
+        let corpus = parse(line.as_bytes(), CorpusFormat::Jsonl, false).unwrap();
+        let message = &corpus.items[0].message;
+        assert_eq!(message.subject.as_deref(), Some("Order 12"));
+        assert!(message.body.as_deref().unwrap().contains("Where is it?"));
+        assert!(message.meta.keys().any(|key| key.starts_with("mail.")));
     }
 
     #[test]

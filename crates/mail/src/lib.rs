@@ -9,10 +9,12 @@
 
 mod facts;
 mod html;
+mod input;
 mod limits;
 mod parse;
 
 pub use facts::{Attachment, MailFacts, MimeShape, mail_meta};
 pub use html::{HtmlText, Link, MAX_HTML_NESTING, html_to_text};
+pub use input::{InputError, MessageInput};
 pub use limits::{LimitError, MIME_DEPTH_CEILING, MailLimits, Truncation};
 pub use parse::{ParsedMail, parse_mail};

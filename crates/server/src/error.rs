@@ -24,6 +24,10 @@ pub enum ApiError {
     /// The body is larger than `server.max_body_bytes`.
     #[error("{0}")]
     BodyTooLarge(String),
+    /// A message's raw mail cannot be read (both `raw` and `raw_b64`, or
+    /// bad base64).
+    #[error("{0}")]
+    InvalidMessage(String),
     /// A message has no subject, body, sender or meta.
     #[error("the message is empty: give at least one of subject, body, sender or meta")]
     EmptyMessage,
@@ -82,6 +86,7 @@ impl ApiError {
             ApiError::InvalidJson(_) => "invalid_json",
             ApiError::UnsupportedMediaType(_) => "unsupported_media_type",
             ApiError::BodyTooLarge(_) => "body_too_large",
+            ApiError::InvalidMessage(_) => "invalid_message",
             ApiError::EmptyMessage => "empty_message",
             ApiError::MessageTooLarge { .. } => "message_too_large",
             ApiError::BatchSize { .. } => "batch_size",
@@ -106,7 +111,9 @@ impl ApiError {
             ApiError::BodyTooLarge(_) | ApiError::MessageTooLarge { .. } => {
                 StatusCode::PAYLOAD_TOO_LARGE
             }
-            ApiError::EmptyMessage | ApiError::BatchSize { .. } => StatusCode::UNPROCESSABLE_ENTITY,
+            ApiError::EmptyMessage | ApiError::BatchSize { .. } | ApiError::InvalidMessage(_) => {
+                StatusCode::UNPROCESSABLE_ENTITY
+            }
             ApiError::InvalidParameter(_) => StatusCode::BAD_REQUEST,
             ApiError::UnknownDecision(_) => StatusCode::NOT_FOUND,
             ApiError::DecisionExpired(_) => StatusCode::GONE,

@@ -6,6 +6,7 @@ use std::time::Instant;
 use axum::extract::State;
 use axum::http::StatusCode;
 use axum::response::{IntoResponse, Response};
+use chaffgate_mail::{MailLimits, MessageInput};
 use chaffgate_store::{
     DecisionFilter, DecisionId, DecisionInput, DecisionRow, NewDecision, Verdict,
 };
@@ -21,7 +22,8 @@ use crate::metrics::LearnerGauges;
 use crate::settings::AckMode;
 use crate::state::{AppState, now_ms};
 
-/// One message to score, as clients send it.
+/// One message to score, as clients send it: message fields, a raw mail
+/// (`raw` text or `raw_b64` bytes), or both.
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct ScoreRequest {
@@ -31,6 +33,8 @@ pub struct ScoreRequest {
     channel: Option<String>,
     #[serde(default)]
     meta: BTreeMap<String, MetaValue>,
+    raw: Option<String>,
+    raw_b64: Option<String>,
     /// The caller's own reference, stored with the decision.
     client_ref: Option<String>,
 }
@@ -50,6 +54,9 @@ pub struct DecisionAnswer {
     channel: String,
     reasons: Vec<Reason>,
     model_seq: i64,
+    /// Caps a raw mail hit (it was judged on what was read).
+    #[serde(skip_serializing_if = "Vec::is_empty")]
+    mail_truncated: Vec<&'static str>,
 }
 
 #[derive(Debug, Serialize)]
@@ -58,15 +65,34 @@ pub struct BatchAnswer {
 }
 
 impl ScoreRequest {
-    fn into_parts(self) -> (Message, Option<String>) {
-        let message = Message {
+    /// The message to judge (a raw mail parsed within the default mail
+    /// caps), the caps it hit, and the client's reference.
+    fn into_parts(
+        self,
+        state: &AppState,
+    ) -> Result<(Message, Vec<&'static str>, Option<String>), ApiError> {
+        let input = MessageInput {
             subject: self.subject,
             body: self.body,
             sender: self.sender,
             channel: self.channel,
             meta: self.meta,
+            raw: self.raw,
+            raw_b64: self.raw_b64,
         };
-        (message, self.client_ref)
+        let limit = state.settings().max_message_bytes;
+        let raw_bytes = input.raw_len();
+        if raw_bytes > limit {
+            return Err(ApiError::MessageTooLarge {
+                bytes: raw_bytes,
+                limit,
+            });
+        }
+        let (message, cuts) = input
+            .into_message(&MailLimits::default())
+            .map_err(|err| ApiError::InvalidMessage(err.to_string()))?;
+        let cuts = cuts.iter().map(|cut| cut.as_str()).collect();
+        Ok((message, cuts, self.client_ref))
     }
 }
 
@@ -163,6 +189,7 @@ fn decide(
         channel,
         reasons: judgement.reasons,
         model_seq: judgement.model_seq,
+        mail_truncated: Vec::new(),
     };
     Ok((answer, AuditJob { row, committed_tx }, committed_rx))
 }
@@ -200,9 +227,10 @@ pub async fn score(
     ApiJson(request): ApiJson<ScoreRequest>,
 ) -> Result<ApiJson<DecisionAnswer>, ApiError> {
     let started = Instant::now();
-    let (message, client_ref) = request.into_parts();
+    let (message, cuts, client_ref) = request.into_parts(&state)?;
     check_message(&state, &message)?;
-    let (answer, job, receiver) = decide(&state, message, client_ref, started)?;
+    let (mut answer, job, receiver) = decide(&state, message, client_ref, started)?;
+    answer.mail_truncated = cuts;
     record(&state, vec![job], receiver.into_iter().collect()).await?;
     Ok(ApiJson(answer))
 }
@@ -220,20 +248,29 @@ pub async fn score_batch(
     }
     let mut parts = Vec::with_capacity(count);
     for (position, request) in request.messages.into_iter().enumerate() {
-        let (message, client_ref) = request.into_parts();
-        check_message(&state, &message).map_err(|err| match err {
+        let checked = request
+            .into_parts(&state)
+            .and_then(|(message, cuts, client_ref)| {
+                check_message(&state, &message)?;
+                Ok((message, cuts, client_ref))
+            });
+        let part = checked.map_err(|err| match err {
             ApiError::EmptyMessage => ApiError::InvalidParameter(format!(
                 "messages[{position}] is empty: give at least one of subject, body, sender or meta"
             )),
+            ApiError::InvalidMessage(why) => {
+                ApiError::InvalidMessage(format!("messages[{position}]: {why}"))
+            }
             other => other,
         })?;
-        parts.push((message, client_ref));
+        parts.push(part);
     }
     let mut decisions = Vec::with_capacity(count);
     let mut jobs = Vec::with_capacity(count);
     let mut receivers = Vec::with_capacity(count);
-    for (message, client_ref) in parts {
-        let (answer, job, receiver) = decide(&state, message, client_ref, started)?;
+    for (message, cuts, client_ref) in parts {
+        let (mut answer, job, receiver) = decide(&state, message, client_ref, started)?;
+        answer.mail_truncated = cuts;
         decisions.push(answer);
         jobs.push(job);
         receivers.extend(receiver);
