@@ -174,3 +174,43 @@ fn bad_config_value_names_key_value_and_allowed_range() {
     let err = stderr(&out);
     assert!(err.contains("features.bits = 99"), "{err}");
 }
+
+#[test]
+fn eval_reads_folders_of_raw_mails() {
+    let dir = tempfile::tempdir().unwrap();
+    let junk = dir.path().join("junk");
+    let fine = dir.path().join("fine");
+    fs::create_dir(&junk).unwrap();
+    fs::create_dir(&fine).unwrap();
+    for day in 1..=6 {
+        let prize = format!(
+            "From: Prize Desk <draw@lucky-draw.example.net>\r\nSubject: Claim your prize {day}\r\n\r\nYou won {day}000 EUR, claim now at http://lucky-draw.example.net\r\n"
+        );
+        let order = format!(
+            "From: Ines <ines@customer.example.org>\r\nSubject: Order {day}\r\n\r\nMy glazed mugs from order {day} have not arrived yet.\r\n"
+        );
+        fs::write(junk.join(format!("2026-11-0{day}a.eml")), prize).unwrap();
+        fs::write(fine.join(format!("2026-11-0{day}b.eml")), order).unwrap();
+    }
+    fs::write(fine.join("notes.txt"), "not a mail").unwrap();
+    let out = chaffgate(
+        dir.path(),
+        &["eval", "--junk-dir", "junk", "--fine-dir", "fine", "--json"],
+        "",
+    );
+    let report = json_ok(&out);
+    assert_eq!(report["judged"], 12);
+    assert_eq!(report["junk"], 6);
+    let out = chaffgate(
+        dir.path(),
+        &["eval", "--corpus", "x.tsv", "--junk-dir", "junk"],
+        "",
+    );
+    assert_eq!(
+        out.status.code(),
+        Some(2),
+        "a corpus file and mail folders exclude each other"
+    );
+    let out = chaffgate(dir.path(), &["eval"], "");
+    assert_eq!(out.status.code(), Some(2));
+}

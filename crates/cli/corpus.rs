@@ -9,7 +9,7 @@
 //! unless the caller asks to skip bad lines, in which case they are counted.
 
 use std::fmt;
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 use anyhow::{Context, bail};
 use chaffgate_mail::{MailLimits, MessageInput};
@@ -85,6 +85,48 @@ pub fn load(path: &Path, format: Option<CorpusFormat>, skip_bad: bool) -> anyhow
         std::fs::read(path).with_context(|| format!("reading corpus {}", path.display()))?;
     let format = format.unwrap_or_else(|| detect_format(path, &bytes));
     parse(&bytes, format, skip_bad).with_context(|| format!("reading corpus {}", path.display()))
+}
+
+/// Loads folders of raw mails (files ending in `.eml`), labelled by the
+/// folder they are in. The mails are taken in file-name order across both
+/// folders (name the files by date for a time-ordered progressive eval).
+pub fn load_mail_dirs(junk_dir: Option<&Path>, fine_dir: Option<&Path>) -> anyhow::Result<Corpus> {
+    let mut files: Vec<(std::ffi::OsString, PathBuf, bool)> = Vec::new();
+    for (dir, is_junk) in [(junk_dir, true), (fine_dir, false)] {
+        let Some(dir) = dir else { continue };
+        let entries =
+            std::fs::read_dir(dir).with_context(|| format!("reading folder {}", dir.display()))?;
+        for entry in entries {
+            let entry = entry.with_context(|| format!("reading folder {}", dir.display()))?;
+            let path = entry.path();
+            let is_mail = path
+                .extension()
+                .and_then(|e| e.to_str())
+                .is_some_and(|e| e.eq_ignore_ascii_case("eml"));
+            if is_mail && path.is_file() {
+                files.push((entry.file_name(), path, is_junk));
+            }
+        }
+    }
+    files.sort();
+    let limits = MailLimits::default();
+    let mut items = Vec::with_capacity(files.len());
+    for (_, path, is_junk) in files {
+        let raw =
+            std::fs::read(&path).with_context(|| format!("reading mail {}", path.display()))?;
+        let parsed = chaffgate_mail::parse_mail(&raw, &limits);
+        items.push(Labelled {
+            message: parsed.message,
+            is_junk,
+        });
+    }
+    if items.is_empty() {
+        bail!("no .eml files found in the given folders");
+    }
+    Ok(Corpus {
+        items,
+        skipped: Vec::new(),
+    })
 }
 
 /// Parses corpus bytes; see [`load`].

@@ -118,10 +118,17 @@ enum LogFormat {
 }
 
 #[derive(Args)]
+#[group(id = "source", required = true, multiple = true, args = ["corpus", "junk_dir", "fine_dir"])]
 struct CorpusArgs {
     /// Labelled corpus: JSONL (message fields plus "label") or LABEL<TAB>TEXT.
-    #[arg(long, value_name = "FILE")]
-    corpus: PathBuf,
+    #[arg(long, value_name = "FILE", conflicts_with_all = ["junk_dir", "fine_dir"])]
+    corpus: Option<PathBuf>,
+    /// A folder of raw mails (.eml) that are junk.
+    #[arg(long, value_name = "DIR")]
+    junk_dir: Option<PathBuf>,
+    /// A folder of raw mails (.eml) that are fine.
+    #[arg(long, value_name = "DIR")]
+    fine_dir: Option<PathBuf>,
     /// Corpus format (default: from the file name, else from its first line).
     #[arg(long, value_enum)]
     format: Option<CorpusFormat>,
@@ -250,7 +257,10 @@ fn init_logging(format: LogFormat) {
 }
 
 fn load_corpus(args: &CorpusArgs) -> anyhow::Result<Corpus> {
-    let mut corpus = corpus::load(&args.corpus, args.format, args.skip_bad)?;
+    let mut corpus = match &args.corpus {
+        Some(path) => corpus::load(path, args.format, args.skip_bad)?,
+        None => corpus::load_mail_dirs(args.junk_dir.as_deref(), args.fine_dir.as_deref())?,
+    };
     if !corpus.skipped.is_empty() {
         let count = corpus.skipped.len();
         let first = &corpus.skipped[0];
@@ -318,7 +328,21 @@ fn evaluate(config: &Config, args: EvalArgs) -> anyhow::Result<()> {
     if args.json {
         println!("{}", serde_json::to_string_pretty(&report)?);
     } else {
-        let name = display_name(&args.corpus.corpus);
+        let name = match (
+            &args.corpus.corpus,
+            &args.corpus.junk_dir,
+            &args.corpus.fine_dir,
+        ) {
+            (Some(path), _, _) => display_name(path),
+            (None, junk, fine) => {
+                let folders: Vec<String> = [junk, fine]
+                    .into_iter()
+                    .flatten()
+                    .map(|dir| display_name(dir))
+                    .collect();
+                format!("mail folders {}", folders.join(" + "))
+            }
+        };
         let rule = config.model.rule;
         let bits = pipeline.settings().bits;
         println!("corpus                 {name}\nmodel                  {rule}, 2^{bits} slots");
