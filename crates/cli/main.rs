@@ -118,10 +118,14 @@ enum LogFormat {
 }
 
 #[derive(Args)]
-#[group(id = "source", required = true, multiple = true, args = ["corpus", "junk_dir", "fine_dir"])]
 struct CorpusArgs {
     /// Labelled corpus: JSONL (message fields plus "label") or LABEL<TAB>TEXT.
-    #[arg(long, value_name = "FILE", conflicts_with_all = ["junk_dir", "fine_dir"])]
+    #[arg(
+        long,
+        value_name = "FILE",
+        required_unless_present_any = ["junk_dir", "fine_dir"],
+        conflicts_with_all = ["junk_dir", "fine_dir"]
+    )]
     corpus: Option<PathBuf>,
     /// A folder of raw mails (.eml) that are junk.
     #[arg(long, value_name = "DIR")]
