@@ -566,32 +566,7 @@ mod tests {
         // CRLF form. The CRLF before a delimiter belongs to the delimiter, so
         // the first part has no trailing line break and the second keeps the
         // one it "DOES end with".
-        let raw = concat!(
-            "From: Nathaniel Borenstein <nsb@bellcore.com>\r\n",
-            "To: Ned Freed <ned@innosoft.com>\r\n",
-            "Date: Sun, 21 Mar 1993 23:56:48 -0800 (PST)\r\n",
-            "Subject: Sample message\r\n",
-            "MIME-Version: 1.0\r\n",
-            "Content-type: multipart/mixed; boundary=\"simple boundary\"\r\n",
-            "\r\n",
-            "This is the preamble.  It is to be ignored, though it\r\n",
-            "is a handy place for composition agents to include an\r\n",
-            "explanatory note to non-MIME conformant readers.\r\n",
-            "\r\n",
-            "--simple boundary\r\n",
-            "\r\n",
-            "This is implicitly typed plain US-ASCII text.\r\n",
-            "It does NOT end with a linebreak.\r\n",
-            "--simple boundary\r\n",
-            "Content-type: text/plain; charset=us-ascii\r\n",
-            "\r\n",
-            "This is explicitly typed plain US-ASCII text.\r\n",
-            "It DOES end with a linebreak.\r\n",
-            "\r\n",
-            "--simple boundary--\r\n",
-            "\r\n",
-            "This is the epilogue.  It is also to be ignored.\r\n",
-        );
+        let raw = include_str!("../tests/fixtures/rfc2046-simple-boundary.eml");
         let limits = MailLimits::default();
         let mut walker = Walker::new(&limits);
         let (headers, body_start) = walker.read_headers(raw.as_bytes());
