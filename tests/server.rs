@@ -535,3 +535,38 @@ fn raw_mail_is_scored_and_learnt_like_any_message() {
     let both = json!({ "raw": mail, "raw_b64": "AAAA" }).to_string();
     assert_eq!(server.post("/v1/score", &both).0, 422);
 }
+
+#[test]
+fn client_time_is_refused_by_default_and_recorded_when_allowed() {
+    let body =
+        r#"{"subject": "Glaze colours for the spring mugs", "received_at_ms": 1772409600000}"#;
+    let dir = tempfile::tempdir().unwrap();
+    let server = TestServer::start_in(dir.path(), &[]);
+    let (status, answer) = server.post("/v1/score", body);
+    assert_eq!(
+        (status, answer["error"]["code"].as_str()),
+        (400, Some("invalid_parameter"))
+    );
+    server.stop();
+
+    let dir = tempfile::tempdir().unwrap();
+    let server = TestServer::start_in(
+        dir.path(),
+        &[("CHAFFGATE_AUDIT_ACCEPT_CLIENT_TIME", "true")],
+    );
+    let (status, answer) = server.post("/v1/score", body);
+    assert_eq!(status, 200, "{answer}");
+    let id = answer["decision_id"].as_str().unwrap();
+    let (_, row) = server.get(&format!("/v1/decisions/{id}"));
+    // 2026-03-02T00:00:00Z, the time the request gave.
+    assert_eq!(row["created_at_ms"], 1_772_409_600_000_i64);
+    // The feedback window runs from when the service saw the message, so
+    // feedback on an old message is still accepted.
+    let (status, _) = feedback(&server, id, "fine");
+    assert_eq!(status, 201);
+    let (status, answer) = server.post("/v1/score", r#"{"subject": "x", "received_at_ms": -5}"#);
+    assert_eq!(
+        (status, answer["error"]["code"].as_str()),
+        (400, Some("invalid_parameter"))
+    );
+}

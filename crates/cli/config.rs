@@ -90,6 +90,8 @@ pub struct AuditConfig {
     pub max_batch_rows: u32,
     /// Seconds a decision's message is kept so feedback on it can be learnt.
     pub feedback_window_secs: u64,
+    /// Whether score requests may carry `received_at_ms` as the decision's time.
+    pub accept_client_time: bool,
 }
 
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
@@ -106,6 +108,7 @@ impl Default for AuditConfig {
             ack: AckName::AfterCommit,
             max_batch_rows: 512,
             feedback_window_secs: 30 * 24 * 3600,
+            accept_client_time: false,
         }
     }
 }

@@ -64,6 +64,7 @@ pub fn server_settings(config: &Config) -> anyhow::Result<ServerSettings> {
             },
             max_batch_rows: config.audit.max_batch_rows as usize,
             feedback_window: Duration::from_secs(config.audit.feedback_window_secs),
+            accept_client_time: config.audit.accept_client_time,
         },
         channels: Channels::new(by_name, thresholds(DEFAULT_CHANNEL)),
     })

@@ -37,6 +37,9 @@ pub struct ScoreRequest {
     raw_b64: Option<String>,
     /// The caller's own reference, stored with the decision.
     client_ref: Option<String>,
+    /// When the message arrived (ms since the Unix epoch); only accepted
+    /// with `audit.accept_client_time`.
+    received_at_ms: Option<i64>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -66,11 +69,12 @@ pub struct BatchAnswer {
 
 impl ScoreRequest {
     /// The message to judge (a raw mail parsed within the default mail
-    /// caps), the caps it hit, and the client's reference.
-    fn into_parts(
-        self,
-        state: &AppState,
-    ) -> Result<(Message, Vec<&'static str>, Option<String>), ApiError> {
+    /// caps), the caps it hit, and the client's reference and arrival time.
+    fn into_parts(self, state: &AppState) -> Result<Parts, ApiError> {
+        let received_at_ms = self
+            .received_at_ms
+            .map(|at| check_received_at(state, at))
+            .transpose()?;
         let input = MessageInput {
             subject: self.subject,
             body: self.body,
@@ -92,8 +96,43 @@ impl ScoreRequest {
             .into_message(&MailLimits::default())
             .map_err(|err| ApiError::InvalidMessage(err.to_string()))?;
         let cuts = cuts.iter().map(|cut| cut.as_str()).collect();
-        Ok((message, cuts, self.client_ref))
+        Ok(Parts {
+            message,
+            cuts,
+            client_ref: self.client_ref,
+            received_at_ms,
+        })
     }
+}
+
+/// A score request, checked and parsed.
+struct Parts {
+    message: Message,
+    /// Caps a raw mail hit.
+    cuts: Vec<&'static str>,
+    client_ref: Option<String>,
+    received_at_ms: Option<i64>,
+}
+
+/// Latest accepted `received_at_ms`: the last millisecond of year 9999.
+const MAX_RECEIVED_AT_MS: i64 = 253_402_300_799_999;
+
+/// Checks a client-given arrival time: allowed by the settings and within
+/// years 1970 to 9999.
+fn check_received_at(state: &AppState, at: i64) -> Result<i64, ApiError> {
+    if !state.settings().audit.accept_client_time {
+        return Err(ApiError::InvalidParameter(
+            "received_at_ms is refused: this service stamps decisions with its own clock \
+             (set audit.accept_client_time = true to replay a stream with its own times)"
+                .to_owned(),
+        ));
+    }
+    if !(0..=MAX_RECEIVED_AT_MS).contains(&at) {
+        return Err(ApiError::InvalidParameter(format!(
+            "received_at_ms = {at}: must be milliseconds since the Unix epoch, between 0 and {MAX_RECEIVED_AT_MS}"
+        )));
+    }
+    Ok(at)
 }
 
 /// Bytes of text in a message, meta keys and text values included.
@@ -142,17 +181,23 @@ type CommittedRx = oneshot::Receiver<Result<(), String>>;
 /// the receiver to await.
 fn decide(
     state: &AppState,
-    message: Message,
-    client_ref: Option<String>,
+    parts: Parts,
     started: Instant,
 ) -> Result<(DecisionAnswer, AuditJob, Option<CommittedRx>), ApiError> {
+    let Parts {
+        message,
+        cuts,
+        client_ref,
+        received_at_ms,
+    } = parts;
     let settings = state.settings();
     let judgement = state.judge().judge(&message, settings.reasons);
     let (channel, thresholds) = settings.channels.resolve(message.channel.as_deref());
     let channel = channel.to_owned();
     let verdict = thresholds.verdict(judgement.p_junk);
     let id = state.next_decision_id();
-    let created_at_ms = now_ms();
+    let now = now_ms();
+    let created_at_ms = received_at_ms.unwrap_or(now);
     let message_json = serde_json::to_string(&message).map_err(ApiError::internal)?;
     let reasons_json = serde_json::to_string(&judgement.reasons).map_err(ApiError::internal)?;
     let window_ms = i64::try_from(settings.audit.feedback_window.as_millis()).unwrap_or(i64::MAX);
@@ -171,7 +216,9 @@ fn decide(
         latency_us,
         input: Some(DecisionInput {
             message_json,
-            expires_at_ms: created_at_ms.saturating_add(window_ms),
+            // The feedback window runs from when the service saw the
+            // message, even when the decision carries an older time.
+            expires_at_ms: now.saturating_add(window_ms),
         }),
     };
     let (committed_tx, committed_rx) = match settings.audit.ack {
@@ -189,7 +236,7 @@ fn decide(
         channel,
         reasons: judgement.reasons,
         model_seq: judgement.model_seq,
-        mail_truncated: Vec::new(),
+        mail_truncated: cuts,
     };
     Ok((answer, AuditJob { row, committed_tx }, committed_rx))
 }
@@ -227,10 +274,9 @@ pub async fn score(
     ApiJson(request): ApiJson<ScoreRequest>,
 ) -> Result<ApiJson<DecisionAnswer>, ApiError> {
     let started = Instant::now();
-    let (message, cuts, client_ref) = request.into_parts(&state)?;
-    check_message(&state, &message)?;
-    let (mut answer, job, receiver) = decide(&state, message, client_ref, started)?;
-    answer.mail_truncated = cuts;
+    let parts = request.into_parts(&state)?;
+    check_message(&state, &parts.message)?;
+    let (answer, job, receiver) = decide(&state, parts, started)?;
     record(&state, vec![job], receiver.into_iter().collect()).await?;
     Ok(ApiJson(answer))
 }
@@ -248,12 +294,10 @@ pub async fn score_batch(
     }
     let mut parts = Vec::with_capacity(count);
     for (position, request) in request.messages.into_iter().enumerate() {
-        let checked = request
-            .into_parts(&state)
-            .and_then(|(message, cuts, client_ref)| {
-                check_message(&state, &message)?;
-                Ok((message, cuts, client_ref))
-            });
+        let checked = request.into_parts(&state).and_then(|parts| {
+            check_message(&state, &parts.message)?;
+            Ok(parts)
+        });
         let part = checked.map_err(|err| match err {
             ApiError::EmptyMessage => ApiError::InvalidParameter(format!(
                 "messages[{position}] is empty: give at least one of subject, body, sender or meta"
@@ -268,9 +312,8 @@ pub async fn score_batch(
     let mut decisions = Vec::with_capacity(count);
     let mut jobs = Vec::with_capacity(count);
     let mut receivers = Vec::with_capacity(count);
-    for (message, cuts, client_ref) in parts {
-        let (mut answer, job, receiver) = decide(&state, message, client_ref, started)?;
-        answer.mail_truncated = cuts;
+    for part in parts {
+        let (answer, job, receiver) = decide(&state, part, started)?;
         decisions.push(answer);
         jobs.push(job);
         receivers.extend(receiver);

@@ -48,6 +48,9 @@ pub struct AuditSettings {
     /// How long the input of a decision is kept so that feedback on it can
     /// recompute its features; feedback after this answers 410.
     pub feedback_window: Duration,
+    /// Whether score requests may say when their message arrived
+    /// (`received_at_ms`); that time then becomes the decision's time.
+    pub accept_client_time: bool,
 }
 
 /// `p_junk` thresholds for one channel.
@@ -117,6 +120,7 @@ impl ServerSettings {
                 ack: AckMode::AfterCommit,
                 max_batch_rows: 512,
                 feedback_window: Duration::from_secs(30 * 24 * 3600),
+                accept_client_time: false,
             },
             channels: Channels::new(
                 BTreeMap::new(),
