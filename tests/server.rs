@@ -501,7 +501,9 @@ fn wait_learnt_to(server: &TestServer, seq: i64) {
 #[test]
 fn raw_mail_is_scored_and_learnt_like_any_message() {
     let dir = tempfile::tempdir().unwrap();
-    let server = TestServer::start_in(dir.path(), &[]);
+    // Enough reasons to list every feature: which ones lead depends on the
+    // server's random hash key.
+    let server = TestServer::start_in(dir.path(), &[("CHAFFGATE_SERVER_REASONS", "100")]);
     let mail = "From: Prize Desk <draw@lucky-draw.example.net>\r\n\
                 Reply-To: claims@elsewhere.example.org\r\n\
                 Subject: =?UTF-8?Q?Claim_your_prize_now?=\r\n\
@@ -534,6 +536,16 @@ fn raw_mail_is_scored_and_learnt_like_any_message() {
     );
     let both = json!({ "raw": mail, "raw_b64": "AAAA" }).to_string();
     assert_eq!(server.post("/v1/score", &both).0, 422);
+
+    // Inline feedback takes a raw mail too, parsed the same way.
+    let before = p_junk(&server.post("/v1/score", &body).1);
+    let inline = json!({ "message": { "raw": mail }, "label": "junk", "moderator": "ana" });
+    let (status, answer) = server.post("/v1/feedback", &inline.to_string());
+    assert_eq!(status, 201, "{answer}");
+    wait_learnt(&server);
+    assert!(p_junk(&server.post("/v1/score", &body).1) > before);
+    let bad = json!({ "message": { "raw_b64": "%%" }, "label": "junk", "moderator": "ana" });
+    assert_eq!(server.post("/v1/feedback", &bad.to_string()).0, 422);
 }
 
 #[test]

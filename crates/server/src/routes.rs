@@ -84,18 +84,7 @@ impl ScoreRequest {
             raw: self.raw,
             raw_b64: self.raw_b64,
         };
-        let limit = state.settings().max_message_bytes;
-        let raw_bytes = input.raw_len();
-        if raw_bytes > limit {
-            return Err(ApiError::MessageTooLarge {
-                bytes: raw_bytes,
-                limit,
-            });
-        }
-        let (message, cuts) = input
-            .into_message(&MailLimits::default())
-            .map_err(|err| ApiError::InvalidMessage(err.to_string()))?;
-        let cuts = cuts.iter().map(|cut| cut.as_str()).collect();
+        let (message, cuts) = read_input(state, input)?;
         Ok(Parts {
             message,
             cuts,
@@ -103,6 +92,27 @@ impl ScoreRequest {
             received_at_ms,
         })
     }
+}
+
+/// The message a client sent, with a raw mail parsed within the default
+/// mail caps, and the caps it hit. Only the raw mail's size is checked
+/// here; [`check_message`] checks the rest.
+fn read_input(
+    state: &AppState,
+    input: MessageInput,
+) -> Result<(Message, Vec<&'static str>), ApiError> {
+    let limit = state.settings().max_message_bytes;
+    let raw_bytes = input.raw_len();
+    if raw_bytes > limit {
+        return Err(ApiError::MessageTooLarge {
+            bytes: raw_bytes,
+            limit,
+        });
+    }
+    let (message, cuts) = input
+        .into_message(&MailLimits::default())
+        .map_err(|err| ApiError::InvalidMessage(err.to_string()))?;
+    Ok((message, cuts.iter().map(|cut| cut.as_str()).collect()))
 }
 
 /// A score request, checked and parsed.
@@ -470,7 +480,8 @@ pub async fn not_found() -> Response {
 #[serde(deny_unknown_fields)]
 pub struct FeedbackRequest {
     decision_id: Option<String>,
-    message: Option<Message>,
+    /// An inline message: fields, a raw mail, or both, as in a score request.
+    message: Option<MessageInput>,
     label: String,
     moderator: Option<String>,
     note: Option<String>,
@@ -533,7 +544,8 @@ pub async fn feedback(
             }
             FeedbackTarget::Decision(DecisionId::new(id))
         }
-        (None, Some(message)) => {
+        (None, Some(input)) => {
+            let (message, _cuts) = read_input(&state, input)?;
             check_message(&state, &message)?;
             let message_json = serde_json::to_string(&message).map_err(ApiError::internal)?;
             FeedbackTarget::Inline { message_json }
