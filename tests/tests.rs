@@ -3,6 +3,7 @@
 mod util;
 
 mod cli;
+mod demo_corpus;
 mod logreg;
 mod server;
 mod sms;
