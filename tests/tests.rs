@@ -5,5 +5,6 @@ mod util;
 mod cli;
 mod demo_corpus;
 mod logreg;
+mod openapi;
 mod server;
 mod sms;
