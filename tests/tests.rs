@@ -3,6 +3,8 @@
 mod util;
 
 mod cli;
+mod demo_corpus;
 mod logreg;
+mod openapi;
 mod server;
 mod sms;

@@ -2,6 +2,10 @@
 //!
 //! A JSONL line may carry a raw mail (`raw` or `raw_b64`) instead of, or
 //! beside, the message fields; it is parsed as the daemon parses one.
+//! Besides `label`, a line may carry the corpus's own bookkeeping: `at`
+//! (when the message arrived, RFC 3339, kept per item), and `id`, `week`
+//! and `campaign`, which are read past. Any other unknown field is still
+//! refused, so that a misspelt message field does not go unnoticed.
 //!
 //! A corpus's own label words are translated here and go no further:
 //! `spam`/`ham` (as in the SMS Spam Collection) become `junk`/`fine`.
@@ -20,6 +24,13 @@ use chaffgate_text::Message;
 pub struct Labelled {
     pub message: Message,
     pub is_junk: bool,
+    /// When the message arrived (a JSONL line's `at`), in milliseconds
+    /// since the Unix epoch.
+    #[cfg_attr(
+        not(test),
+        expect(dead_code, reason = "kept for replaying a corpus on its own clock")
+    )]
+    pub at_unix_ms: Option<i64>,
 }
 
 /// What a loaded corpus holds, and what was skipped on the way.
@@ -118,6 +129,7 @@ pub fn load_mail_dirs(junk_dir: Option<&Path>, fine_dir: Option<&Path>) -> anyho
         items.push(Labelled {
             message: parsed.message,
             is_junk,
+            at_unix_ms: None,
         });
     }
     if items.is_empty() {
@@ -186,7 +198,11 @@ fn parse_tsv_line(line: &str) -> Result<Labelled, String> {
         body: Some(text.to_owned()),
         ..Message::default()
     };
-    Ok(Labelled { message, is_junk })
+    Ok(Labelled {
+        message,
+        is_junk,
+        at_unix_ms: None,
+    })
 }
 
 fn parse_jsonl_line(line: &str) -> Result<Labelled, String> {
@@ -201,6 +217,16 @@ fn parse_jsonl_line(line: &str) -> Result<Labelled, String> {
         None => return Err("missing \"label\"".to_owned()),
     };
     let is_junk = parse_label(&label)?;
+    let at_unix_ms = match object.remove("at") {
+        Some(serde_json::Value::String(at)) => Some(
+            parse_rfc3339_ms(&at).map_err(|what| format!("at {at:?} is not RFC 3339: {what}"))?,
+        ),
+        Some(serde_json::Value::Null) | None => None,
+        Some(other) => return Err(format!("at must be a string, found {other}")),
+    };
+    for bookkeeping in ["id", "week", "campaign"] {
+        object.remove(bookkeeping);
+    }
     let input: MessageInput = serde_json::from_value(serde_json::Value::Object(object))
         .map_err(|err| format!("not a message: {err}"))?;
     let (message, _cuts) = input
@@ -209,7 +235,118 @@ fn parse_jsonl_line(line: &str) -> Result<Labelled, String> {
     if message.is_empty() {
         return Err("the message has no subject, body, sender or meta".to_owned());
     }
-    Ok(Labelled { message, is_junk })
+    Ok(Labelled {
+        message,
+        is_junk,
+        at_unix_ms,
+    })
+}
+
+/// Reads an RFC 3339 date-time (section 5.6), such as
+/// `2026-03-02T08:15:00Z` or `2026-03-02T09:15:00.250+01:00`, as
+/// milliseconds since the Unix epoch. Fractions finer than a millisecond
+/// are dropped; a leap second (`:60`) is refused.
+fn parse_rfc3339_ms(text: &str) -> Result<i64, String> {
+    let bytes = text.as_bytes();
+    let number = |from: usize, len: usize| -> Result<i64, String> {
+        let digits = bytes
+            .get(from..from + len)
+            .filter(|digits| digits.iter().all(u8::is_ascii_digit))
+            .ok_or_else(|| format!("expected {len} digits at byte {from}"))?;
+        Ok(digits
+            .iter()
+            .fold(0, |acc, digit| acc * 10 + i64::from(digit - b'0')))
+    };
+    let expect = |at: usize, allowed: &[u8]| -> Result<(), String> {
+        match bytes.get(at) {
+            Some(found) if allowed.contains(found) => Ok(()),
+            _ => Err(format!(
+                "expected one of {allowed:?} at byte {at}",
+                allowed = String::from_utf8_lossy(allowed)
+            )),
+        }
+    };
+    let year = number(0, 4)?;
+    expect(4, b"-")?;
+    let month = number(5, 2)?;
+    expect(7, b"-")?;
+    let day = number(8, 2)?;
+    expect(10, b"Tt ")?;
+    let hour = number(11, 2)?;
+    expect(13, b":")?;
+    let minute = number(14, 2)?;
+    expect(16, b":")?;
+    let second = number(17, 2)?;
+    if !(1..=12).contains(&month) || day < 1 || day > days_in_month(year, month) {
+        return Err("no such date".to_owned());
+    }
+    if hour > 23 || minute > 59 || second > 59 {
+        return Err("no such time of day".to_owned());
+    }
+    let mut at = 19;
+    let mut millis = 0;
+    if bytes.get(at) == Some(&b'.') {
+        at += 1;
+        let start = at;
+        while bytes.get(at).is_some_and(u8::is_ascii_digit) {
+            if at - start < 3 {
+                millis = millis * 10 + i64::from(bytes[at] - b'0');
+            }
+            at += 1;
+        }
+        if at == start {
+            return Err("expected digits after the decimal point".to_owned());
+        }
+        for _ in (at - start)..3 {
+            millis *= 10;
+        }
+    }
+    let offset_minutes = match bytes.get(at) {
+        Some(b'Z' | b'z') if at + 1 == bytes.len() => 0,
+        Some(sign @ (b'+' | b'-')) if at + 6 == bytes.len() => {
+            expect(at + 3, b":")?;
+            let (hours, minutes) = (number(at + 1, 2)?, number(at + 4, 2)?);
+            if hours > 23 || minutes > 59 {
+                return Err("no such offset".to_owned());
+            }
+            let magnitude = hours * 60 + minutes;
+            if *sign == b'-' { -magnitude } else { magnitude }
+        }
+        _ => {
+            return Err(format!(
+                "expected Z or an offset such as +01:00 at byte {at}"
+            ));
+        }
+    };
+    let days = days_from_civil(year, month, day);
+    let seconds = days * 86_400 + hour * 3_600 + minute * 60 + second - offset_minutes * 60;
+    Ok(seconds * 1_000 + millis)
+}
+
+fn is_leap_year(year: i64) -> bool {
+    (year % 4 == 0 && year % 100 != 0) || year % 400 == 0
+}
+
+fn days_in_month(year: i64, month: i64) -> i64 {
+    match month {
+        2 if is_leap_year(year) => 29,
+        2 => 28,
+        4 | 6 | 9 | 11 => 30,
+        _ => 31,
+    }
+}
+
+/// Days from 1970-01-01 to a date of the proleptic Gregorian calendar.
+fn days_from_civil(year: i64, month: i64, day: i64) -> i64 {
+    // Count from 0000-03-01 so that the leap day falls at the end of each
+    // counted year; 719_468 is the day number of 1970-01-01 on that count.
+    let year = if month <= 2 { year - 1 } else { year };
+    let era = year.div_euclid(400);
+    let year_of_era = year - era * 400;
+    let month_from_march = (month + 9) % 12;
+    let day_of_year = (153 * month_from_march + 2) / 5 + day - 1;
+    let day_of_era = year_of_era * 365 + year_of_era / 4 - year_of_era / 100 + day_of_year;
+    era * 146_097 + day_of_era - 719_468
 }
 
 #[cfg(test)]
@@ -288,6 +425,60 @@ mod tests {
             let text = format!("{err:#}");
             assert!(text.contains(expected), "{line}: {text}");
             assert!(text.contains("line 1"), "{line}: {text}");
+        }
+    }
+
+    #[test]
+    fn jsonl_keeps_arrival_time_and_reads_past_bookkeeping() {
+        let text = br#"{"id":"m-1","at":"2026-03-02T00:00:00Z","week":1,"channel":"mail","campaign":"order-question","body":"Where is it?","label":"fine"}
+{"body":"no clock here","label":"junk"}"#;
+        let corpus = parse(text, CorpusFormat::Jsonl, false).unwrap();
+        // 1772409600 s from GNU date: `date -u -d 2026-03-02T00:00:00Z +%s`.
+        assert_eq!(corpus.items[0].at_unix_ms, Some(1_772_409_600_000));
+        assert_eq!(corpus.items[0].message.channel.as_deref(), Some("mail"));
+        assert!(corpus.items[0].message.meta.is_empty());
+        assert_eq!(corpus.items[1].at_unix_ms, None);
+
+        for (line, expected) in [
+            (
+                r#"{"body":"x","at":"yesterday","label":"fine"}"#,
+                "not RFC 3339",
+            ),
+            (
+                r#"{"body":"x","at":17,"label":"fine"}"#,
+                "at must be a string",
+            ),
+            (r#"{"body":"x","idd":"m-1","label":"fine"}"#, "idd"),
+        ] {
+            let err = parse(line.as_bytes(), CorpusFormat::Jsonl, false).unwrap_err();
+            let text = format!("{err:#}");
+            assert!(text.contains(expected), "{line}: {text}");
+        }
+    }
+
+    #[test]
+    fn rfc3339_examples_read_as_epoch_milliseconds() {
+        // The examples of RFC 3339 section 5.8; the expected values are
+        // Python 3.11's datetime.fromisoformat(...).timestamp() * 1000.
+        for (text, expected) in [
+            ("1985-04-12T23:20:50.52Z", 482_196_050_520),
+            ("1996-12-19T16:39:57-08:00", 851_042_397_000),
+            ("1937-01-01T12:00:27.87+00:20", -1_041_337_172_130),
+            // A leap day; `date -u -d 2000-02-29T12:00:00Z +%s` (GNU date).
+            ("2000-02-29T12:00:00Z", 951_825_600_000),
+        ] {
+            assert_eq!(parse_rfc3339_ms(text), Ok(expected), "{text}");
+        }
+        for bad in [
+            "1990-12-31T23:59:60Z",
+            "2026-02-29T00:00:00Z",
+            "2026-03-02",
+            "2026-03-02T00:00:00",
+            "2026-03-02T00:00:00Zjunk",
+            "2026-03-02T00:00:00.Z",
+            "2026-03-02T00:00:00+0100",
+        ] {
+            assert!(parse_rfc3339_ms(bad).is_err(), "{bad}");
         }
     }
 

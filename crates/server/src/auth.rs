@@ -95,9 +95,9 @@ pub fn allows(role: Role, needed: Role) -> bool {
     rank(role) >= rank(needed)
 }
 
-/// The role a route needs.
-fn needed_role(path: &str) -> Option<Role> {
-    if path == "/healthz" || path == "/readyz" {
+/// The role a route needs; `None` for the open ones.
+pub(crate) fn needed_role(path: &str) -> Option<Role> {
+    if path == "/healthz" || path == "/readyz" || path == crate::openapi::PATH {
         return None;
     }
     if path.starts_with("/v1/score") {
@@ -181,6 +181,7 @@ mod tests {
     #[test]
     fn routes_need_the_documented_roles() {
         assert_eq!(needed_role("/healthz"), None);
+        assert_eq!(needed_role("/v1/openapi.json"), None);
         assert_eq!(needed_role("/v1/score/batch"), Some(Role::Score));
         assert_eq!(needed_role("/v1/decisions/01"), Some(Role::Moderate));
         assert_eq!(needed_role("/v1/model"), Some(Role::Operate));

@@ -13,6 +13,7 @@ pub mod judge;
 pub mod learner;
 pub mod metrics;
 pub mod model_file;
+pub mod openapi;
 pub mod routes;
 pub mod settings;
 pub mod state;
@@ -21,7 +22,8 @@ use std::future::Future;
 use std::sync::Arc;
 
 use axum::extract::{DefaultBodyLimit, MatchedPath, State};
-use axum::routing::{get, post};
+use axum::handler::Handler;
+use axum::routing::{MethodRouter, get, post};
 use axum::{Router, middleware};
 use chaffgate_store::Store;
 use tokio::net::TcpListener;
@@ -103,20 +105,84 @@ pub fn start(
     )
 }
 
+/// An HTTP method a route answers, as OpenAPI names it.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum RouteMethod {
+    Get,
+    Post,
+}
+
+impl RouteMethod {
+    /// Lowercase, as the keys of an OpenAPI path item.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            RouteMethod::Get => "get",
+            RouteMethod::Post => "post",
+        }
+    }
+}
+
+/// One route of the API: where it is, which method, and what answers.
+struct RouteEntry {
+    path: &'static str,
+    method: RouteMethod,
+    handler: MethodRouter<AppState>,
+}
+
+fn entry<H, T>(path: &'static str, method: RouteMethod, handler: H) -> RouteEntry
+where
+    H: Handler<T, AppState>,
+    T: 'static,
+{
+    let handler = match method {
+        RouteMethod::Get => get(handler),
+        RouteMethod::Post => post(handler),
+    };
+    RouteEntry {
+        path,
+        method,
+        handler,
+    }
+}
+
+/// Every route the router serves. Routes are added here and nowhere else,
+/// so that [`route_list`] (and with it the check that `openapi.json`
+/// documents each one) always matches what is served. Each path appears
+/// once.
+fn route_table() -> Vec<RouteEntry> {
+    use RouteMethod::{Get, Post};
+    vec![
+        entry("/v1/score", Post, routes::score),
+        entry("/v1/score/batch", Post, routes::score_batch),
+        entry("/v1/decisions", Get, routes::decisions),
+        entry("/v1/decisions/{id}", Get, routes::decision),
+        entry("/v1/feedback", Post, routes::feedback),
+        entry("/v1/model", Get, routes::model),
+        entry("/v1/model/rollback", Post, routes::rollback),
+        entry(openapi::PATH, Get, openapi::document),
+        entry("/healthz", Get, routes::healthz),
+        entry("/readyz", Get, routes::readyz),
+        entry("/metrics", Get, routes::metrics_text),
+    ]
+}
+
+/// The routes the router serves, as (path, method), paths in axum's
+/// `{param}` form (which is also OpenAPI's).
+pub fn route_list() -> Vec<(&'static str, RouteMethod)> {
+    route_table()
+        .into_iter()
+        .map(|route| (route.path, route.method))
+        .collect()
+}
+
 /// The router with every route and the body limit.
 pub fn app(state: AppState) -> Router {
     let max_body_bytes = state.settings().max_body_bytes;
-    Router::new()
-        .route("/v1/score", post(routes::score))
-        .route("/v1/score/batch", post(routes::score_batch))
-        .route("/v1/decisions", get(routes::decisions))
-        .route("/v1/decisions/{id}", get(routes::decision))
-        .route("/v1/feedback", post(routes::feedback))
-        .route("/v1/model", get(routes::model))
-        .route("/v1/model/rollback", post(routes::rollback))
-        .route("/healthz", get(routes::healthz))
-        .route("/readyz", get(routes::readyz))
-        .route("/metrics", get(routes::metrics_text))
+    let mut router = Router::new();
+    for route in route_table() {
+        router = router.route(route.path, route.handler);
+    }
+    router
         .fallback(routes::not_found)
         .layer(middleware::from_fn_with_state(
             state.clone(),
