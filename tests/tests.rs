@@ -3,6 +3,7 @@
 mod util;
 
 mod cli;
+mod demo;
 mod demo_corpus;
 mod logreg;
 mod openapi;

@@ -6,6 +6,7 @@
 
 mod config;
 mod corpus;
+mod demo;
 mod eval;
 mod pipeline;
 mod rebuild;
@@ -59,6 +60,8 @@ enum Command {
     Serve(ServeArgs),
     /// Replay the whole feedback log into a fresh model.
     Rebuild(RebuildArgs),
+    /// Run the daemon on an invented stream: learn, replay, report, and serve the pages.
+    Demo(demo::DemoArgs),
     /// Manage the daemon's access tokens.
     #[command(subcommand)]
     Token(TokenCommand),
@@ -212,6 +215,7 @@ fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Eval(args) => evaluate(&config, args),
         Command::Score(args) => score(&config, args),
         Command::Serve(args) => serve(&config, args),
+        Command::Demo(args) => demo::run(&config, args),
         Command::Token(command) => runtime()?.block_on(async {
             match command {
                 TokenCommand::Add { role, name } => {

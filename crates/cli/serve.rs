@@ -71,6 +71,24 @@ pub fn server_settings(config: &Config) -> anyhow::Result<ServerSettings> {
 }
 
 pub async fn run(config: &Config, options: ServeOptions) -> anyhow::Result<()> {
+    run_until(
+        config,
+        options,
+        // One line on stdout for people and scripts (the port may have been 0).
+        |address| println!("chaffgate listening on http://{address}"),
+        shutdown_signal(),
+    )
+    .await
+}
+
+/// Runs the daemon until `shutdown` completes; `on_listening` is told the
+/// bound address once the listener is open.
+pub async fn run_until(
+    config: &Config,
+    options: ServeOptions,
+    on_listening: impl FnOnce(SocketAddr),
+    shutdown: impl std::future::Future<Output = ()> + Send + 'static,
+) -> anyhow::Result<()> {
     let settings = server_settings(config)?;
     let data_dir = &config.server.data_dir;
     std::fs::create_dir_all(data_dir.join(CHECKPOINT_DIR))
@@ -112,8 +130,7 @@ pub async fn run(config: &Config, options: ServeOptions) -> anyhow::Result<()> {
         .await
         .with_context(|| format!("listening on {}", settings.listen))?;
     let address = listener.local_addr()?;
-    // One line on stdout for people and scripts (the port may have been 0).
-    println!("chaffgate listening on http://{address}");
+    on_listening(address);
     if tokens.is_empty() {
         tracing::warn!(%address, "no access tokens exist: the service is open to every local user, so it listens on loopback only; add tokens with `chaffgate token add`");
     } else if address.ip().is_loopback() {
@@ -136,7 +153,7 @@ pub async fn run(config: &Config, options: ServeOptions) -> anyhow::Result<()> {
         back,
         tokens,
     );
-    chaffgate_server::serve(listener, state, tasks, shutdown_signal())
+    chaffgate_server::serve(listener, state, tasks, shutdown)
         .await
         .context("serving HTTP")?;
     store.close().await;
@@ -205,7 +222,7 @@ async fn load_model(
 }
 
 /// Resolves on SIGINT (Ctrl-C) or SIGTERM.
-async fn shutdown_signal() {
+pub async fn shutdown_signal() {
     let interrupt = async {
         if let Err(err) = tokio::signal::ctrl_c().await {
             tracing::error!(error = %err, "cannot listen for Ctrl-C");
