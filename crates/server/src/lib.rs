@@ -13,6 +13,7 @@ pub mod judge;
 pub mod learner;
 pub mod metrics;
 pub mod model_file;
+pub mod pages;
 pub mod routes;
 pub mod settings;
 pub mod state;
@@ -117,6 +118,8 @@ pub fn app(state: AppState) -> Router {
         .route("/healthz", get(routes::healthz))
         .route("/readyz", get(routes::readyz))
         .route("/metrics", get(routes::metrics_text))
+        .route(pages::review::PATH, get(pages::review::page))
+        .route(pages::review::QUEUE_PATH, get(pages::review::queue))
         .fallback(routes::not_found)
         .layer(middleware::from_fn_with_state(
             state.clone(),
