@@ -125,8 +125,9 @@ impl Drop for Driver {
     }
 }
 
-/// A browser session: one headless chromium with its own profile folder.
-struct Session<'d> {
+/// One headless chromium with its own profile folder, driven through
+/// chromedriver.
+struct Browser<'d> {
     driver: &'d Driver,
     id: String,
     _profile: tempfile::TempDir,
@@ -135,8 +136,8 @@ struct Session<'d> {
 /// An element of the page, by WebDriver reference.
 struct Element(String);
 
-impl<'d> Session<'d> {
-    fn new(driver: &'d Driver) -> Session<'d> {
+impl<'d> Browser<'d> {
+    fn new(driver: &'d Driver) -> Browser<'d> {
         let profile = tempfile::tempdir().expect("profile folder");
         let user_data_dir = format!("--user-data-dir={}", profile.path().display());
         let capabilities = json!({
@@ -163,9 +164,9 @@ impl<'d> Session<'d> {
         let value = driver.command("POST", "/session", Some(&capabilities));
         let id = value["sessionId"]
             .as_str()
-            .unwrap_or_else(|| panic!("no session id in {value}"))
+            .unwrap_or_else(|| panic!("no WebDriver id in {value}"))
             .to_owned();
-        Session {
+        Browser {
             driver,
             id,
             _profile: profile,
@@ -263,8 +264,8 @@ impl<'d> Session<'d> {
         }
     }
 
-    /// Ends the session (closes the browser).
-    fn delete(self) {
+    /// Closes the browser.
+    fn close(self) {
         self.command("DELETE", "", None);
     }
 }
@@ -402,33 +403,33 @@ fn a_moderator_signs_in_and_marks_two_messages_by_keyboard() {
     let decisions = score_all(&server, Some(&moderator), &QUEUE_MESSAGES);
     assert_eq!(queue_len(dir.path()), 4);
 
-    let session = Session::new(&driver);
-    session.navigate(&format!("{}/review", server.base));
-    session.wait_for(
+    let browser = Browser::new(&driver);
+    browser.navigate(&format!("{}/review", server.base));
+    browser.wait_for(
         "the sign-in form",
         "return !document.getElementById('cg-login').hidden;",
     );
-    let title = session.text("return document.title;");
+    let title = browser.text("return document.title;");
     assert_eq!(title, "Review queue · chaffgate");
-    let caution = session.text("return document.querySelector('.cg-caution').textContent;");
+    let caution = browser.text("return document.querySelector('.cg-caution').textContent;");
     assert!(
         caution.contains("can hide a legitimate message"),
         "{caution}"
     );
 
     // A wrong token: the form comes back with the server's reason.
-    session.send_keys(&session.find("#cg-token"), "not-a-token");
-    session.click(&session.find("#cg-login button[type=submit]"));
-    session.wait_for(
+    browser.send_keys(&browser.find("#cg-token"), "not-a-token");
+    browser.click(&browser.find("#cg-login button[type=submit]"));
+    browser.wait_for(
         "the refusal",
         "return document.getElementById('cg-login-why').textContent.includes('unknown or revoked');",
     );
     assert_eq!(
-        session.execute("return sessionStorage.getItem('chaffgate.token');"),
+        browser.execute("return sessionStorage.getItem('chaffgate.token');"),
         Value::Null
     );
     // The 401 itself is the only thing the console may report so far.
-    let log = session.browser_log();
+    let log = browser.browser_log();
     for entry in severe(&log) {
         assert!(
             entry["message"].as_str().unwrap_or("").contains("401"),
@@ -436,73 +437,73 @@ fn a_moderator_signs_in_and_marks_two_messages_by_keyboard() {
         );
     }
 
-    session.send_keys(&session.find("#cg-token"), &moderator);
-    session.click(&session.find("#cg-login button[type=submit]"));
-    session.wait_for(
+    browser.send_keys(&browser.find("#cg-token"), &moderator);
+    browser.click(&browser.find("#cg-login button[type=submit]"));
+    browser.wait_for(
         "four queue items",
         "return document.querySelectorAll('.cg-item').length === 4;",
     );
     // Newest first: the reverse of the scoring order.
-    let shown: Vec<String> = serde_json::from_value(session.execute(ITEM_IDS)).unwrap();
+    let shown: Vec<String> = serde_json::from_value(browser.execute(ITEM_IDS)).unwrap();
     let newest_first: Vec<String> = decisions.iter().rev().cloned().collect();
     assert_eq!(shown, newest_first);
     assert_eq!(
-        session.text(FOCUSED_ID),
+        browser.text(FOCUSED_ID),
         shown[0],
         "the first item has the focus"
     );
     assert_eq!(
-        session.text("return document.getElementById('cg-count').textContent;"),
+        browser.text("return document.getElementById('cg-count').textContent;"),
         "4"
     );
     // The token lives in this tab's session storage only.
     assert_eq!(
-        session.execute(
+        browser.execute(
             "return [sessionStorage.getItem('chaffgate.token'), localStorage.length, document.cookie];"
         ),
         json!([moderator, 0, ""])
     );
     // The markup in the first message stayed text.
     assert_eq!(
-        session.execute(
+        browser.execute(
             "return [document.querySelectorAll('#cg-content img, #cg-content b').length, document.title];"
         ),
         json!([0, "Review queue · chaffgate"])
     );
-    let hostile = session.text(&format!(
+    let hostile = browser.text(&format!(
         "return document.querySelector('[data-decision=\"{id}\"] .cg-msg').textContent;",
         id = decisions[0]
     ));
     assert!(hostile.contains("<img src=x onerror="), "{hostile}");
     assert!(hostile.contains("<b>prize</b>"), "{hostile}");
-    let marks = session.execute("return document.querySelectorAll('#cg-content mark.cg-up, #cg-content mark.cg-down').length;");
+    let marks = browser.execute("return document.querySelectorAll('#cg-content mark.cg-up, #cg-content mark.cg-down').length;");
     assert!(
         marks.as_u64().unwrap_or(0) > 0,
         "reasons are marked: {marks}"
     );
 
     // x marks the focused (newest) message junk; the next takes the focus.
-    session.press("x");
-    session.wait_for(
+    browser.press("x");
+    browser.wait_for(
         "three queue items",
         "return document.querySelectorAll('.cg-item').length === 3;",
     );
-    assert_eq!(session.text(FOCUSED_ID), shown[1]);
-    session.wait_for(
+    assert_eq!(browser.text(FOCUSED_ID), shown[1]);
+    browser.wait_for(
         "the announcement",
         "return document.getElementById('cg-status').textContent.startsWith('Marked junk');",
     );
     // j moves on, k moves back, j again; f marks that one fine.
-    session.press("jkj");
-    assert_eq!(session.text(FOCUSED_ID), shown[2]);
-    session.press("f");
-    session.wait_for(
+    browser.press("jkj");
+    assert_eq!(browser.text(FOCUSED_ID), shown[2]);
+    browser.press("f");
+    browser.wait_for(
         "two queue items",
         "return document.querySelectorAll('.cg-item').length === 2;",
     );
-    assert_eq!(session.text(FOCUSED_ID), shown[3]);
+    assert_eq!(browser.text(FOCUSED_ID), shown[3]);
     assert_eq!(
-        session.text("return document.getElementById('cg-count').textContent;"),
+        browser.text("return document.getElementById('cg-count').textContent;"),
         "2"
     );
 
@@ -523,9 +524,9 @@ fn a_moderator_signs_in_and_marks_two_messages_by_keyboard() {
     assert_eq!(fragment.matches(r#"class="cg-item""#).count(), 2);
     assert!(!fragment.contains(&shown[0]) && !fragment.contains(&shown[2]));
 
-    let log = session.browser_log();
+    let log = browser.browser_log();
     assert!(severe(&log).is_empty(), "console errors: {log:?}");
-    session.delete();
+    browser.close();
     assert!(server.stop());
 }
 
@@ -538,30 +539,30 @@ fn in_open_mode_the_queue_needs_no_token_but_a_name() {
     let server = TestServer::start_in(dir.path(), &REVIEW_EVERYTHING);
     let decisions = score_all(&server, None, &QUEUE_MESSAGES[1..3]);
 
-    let session = Session::new(&driver);
-    session.navigate(&format!("{}/review", server.base));
-    session.wait_for(
+    let browser = Browser::new(&driver);
+    browser.navigate(&format!("{}/review", server.base));
+    browser.wait_for(
         "two queue items",
         "return document.querySelectorAll('.cg-item').length === 2;",
     );
     assert_eq!(
-        session.execute(
+        browser.execute(
             "return [document.getElementById('cg-login').hidden, document.getElementById('cg-signout').hidden];"
         ),
         json!([true, true])
     );
     // Without a token nothing names the moderator: the page asks first.
-    session.press("x");
-    session.wait_for(
+    browser.press("x");
+    browser.wait_for(
         "the request for a name",
         "return document.activeElement.id === 'cg-moderator';",
     );
-    session.send_keys(&session.find("#cg-moderator"), "Rosa");
-    session.click(&session.find(&format!(
+    browser.send_keys(&browser.find("#cg-moderator"), "Rosa");
+    browser.click(&browser.find(&format!(
         "[data-decision=\"{id}\"] button[data-label=fine]",
         id = decisions[0]
     )));
-    session.wait_for(
+    browser.wait_for(
         "one queue item",
         "return document.querySelectorAll('.cg-item').length === 1;",
     );
@@ -571,12 +572,12 @@ fn in_open_mode_the_queue_needs_no_token_but_a_name() {
         Some(("fine".to_owned(), "Rosa".to_owned()))
     );
     assert_eq!(
-        session.execute("return [sessionStorage.getItem('chaffgate.token'), document.cookie];"),
+        browser.execute("return [sessionStorage.getItem('chaffgate.token'), document.cookie];"),
         json!([null, ""])
     );
-    let log = session.browser_log();
+    let log = browser.browser_log();
     assert!(severe(&log).is_empty(), "console errors: {log:?}");
-    session.delete();
+    browser.close();
     assert!(server.stop());
 }
 

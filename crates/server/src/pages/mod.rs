@@ -1,4 +1,4 @@
-//! Pages for people: a shared page shell and the helpers pages render with.
+//! Pages for people: a shared page shell and what pages render with.
 //!
 //! Browsers send no bearer header when they navigate, so each page comes in
 //! two parts:
@@ -17,7 +17,9 @@
 //!
 //! Every page calls [`shell`] with its title, fragment URL and its own
 //! script and styles; an operator page fetches an operator-only fragment
-//! the same way. The shared script gives page scripts one object,
+//! the same way. A new page adds its shell's path to [`SHELL_PATHS`] and
+//! registers both routes in `app()`; its fragment needs role `operate`
+//! unless `auth::needed_role` names a lower one. The shared script gives page scripts one object,
 //! `window.chaffgate`:
 //!
 //! | member | what it does |
