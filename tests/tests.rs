@@ -2,6 +2,7 @@
 
 mod util;
 
+mod browser;
 mod cli;
 mod demo;
 mod demo_corpus;

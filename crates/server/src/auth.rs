@@ -97,8 +97,16 @@ pub fn allows(role: Role, needed: Role) -> bool {
 
 /// The role a route needs; `None` for the open ones.
 pub(crate) fn needed_role(path: &str) -> Option<Role> {
-    if path == "/healthz" || path == "/readyz" || path == crate::openapi::PATH {
+    // Page shells hold no data; their fragments need the role below.
+    if path == "/healthz"
+        || path == "/readyz"
+        || path == crate::openapi::PATH
+        || crate::pages::is_shell(path)
+    {
         return None;
+    }
+    if path == crate::pages::review::QUEUE_PATH {
+        return Some(Role::Moderate);
     }
     if path.starts_with("/v1/score") {
         return Some(Role::Score);
@@ -186,6 +194,9 @@ mod tests {
         assert_eq!(needed_role("/v1/decisions/01"), Some(Role::Moderate));
         assert_eq!(needed_role("/v1/model"), Some(Role::Operate));
         assert_eq!(needed_role("/metrics"), Some(Role::Operate));
+        assert_eq!(needed_role("/review"), None);
+        assert_eq!(needed_role("/review/queue"), Some(Role::Moderate));
+        assert_eq!(needed_role("/review/other"), Some(Role::Operate));
     }
 
     #[test]

@@ -14,6 +14,7 @@ pub mod learner;
 pub mod metrics;
 pub mod model_file;
 pub mod openapi;
+pub mod pages;
 pub mod routes;
 pub mod settings;
 pub mod state;
@@ -182,7 +183,10 @@ pub fn app(state: AppState) -> Router {
     for route in route_table() {
         router = router.route(route.path, route.handler);
     }
+    // The pages are for people, not part of the documented API.
     router
+        .route(pages::review::PATH, get(pages::review::page))
+        .route(pages::review::QUEUE_PATH, get(pages::review::queue))
         .fallback(routes::not_found)
         .layer(middleware::from_fn_with_state(
             state.clone(),

@@ -156,7 +156,7 @@ pub struct DecisionPage {
 /// The decision columns, with the input's expiry joined on as
 /// `input_expires_at_ms`. Used with `FROM decisions d LEFT JOIN
 /// decision_inputs i ON i.decision_id = d.id`.
-const DECISION_COLUMNS: &str = "d.id, d.created_at_ms, d.channel, d.client_ref, \
+pub(crate) const DECISION_COLUMNS: &str = "d.id, d.created_at_ms, d.channel, d.client_ref, \
      d.content_sha256, d.content, d.p_junk, d.verdict, d.model_seq, d.reasons, d.latency_us, \
      i.expires_at_ms AS input_expires_at_ms";
 

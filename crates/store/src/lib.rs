@@ -43,6 +43,7 @@ mod checkpoints;
 mod decisions;
 mod error;
 mod feedback;
+mod queue;
 mod tokens;
 mod types;
 
@@ -61,6 +62,7 @@ pub use decisions::{
 };
 pub use error::StoreError;
 pub use feedback::{FeedbackOutcome, FeedbackRow, FeedbackTarget, NewFeedback};
+pub use queue::{QueueFilter, QueueOrder, QueuePage, QueueScope};
 pub use tokens::TokenRow;
 pub use types::{DecisionId, FeedbackKind, FeedbackSeq, Label, Role, UnknownWord, Verdict};
 
