@@ -209,6 +209,7 @@ fn client_mistakes_get_4xx_with_stable_codes() {
         ("/v1/decisions?cursor=garbage", 400, "invalid_parameter"),
         ("/v1/decisions?colour=red", 400, "invalid_parameter"),
         ("/v1/nothing", 404, "not_found"),
+        ("/v1/score", 405, "method_not_allowed"),
     ] {
         let (got, answer) = server.get(path);
         assert_eq!(

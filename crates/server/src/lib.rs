@@ -188,6 +188,7 @@ pub fn app(state: AppState) -> Router {
         .route(pages::review::PATH, get(pages::review::page))
         .route(pages::review::QUEUE_PATH, get(pages::review::queue))
         .fallback(routes::not_found)
+        .method_not_allowed_fallback(routes::method_not_allowed)
         .layer(middleware::from_fn_with_state(
             state.clone(),
             auth::authenticate,

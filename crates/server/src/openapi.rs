@@ -163,6 +163,8 @@ mod tests {
         let mut codes: BTreeSet<String> = every.iter().map(|e| e.code().to_owned()).collect();
         // The fallback for unknown paths (`routes::not_found`).
         codes.insert("not_found".to_owned());
+        // A known path with a method it does not take (`routes::method_not_allowed`).
+        codes.insert("method_not_allowed".to_owned());
         assert_eq!(string_enum(&doc(), "ErrorCode"), codes);
 
         // Each status an error can have is documented on some operation.

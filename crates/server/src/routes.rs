@@ -475,6 +475,17 @@ pub async fn not_found() -> Response {
     (StatusCode::NOT_FOUND, axum::Json(body)).into_response()
 }
 
+/// The answer for a known path asked with a method it does not take.
+pub async fn method_not_allowed() -> Response {
+    let body = serde_json::json!({
+        "error": {
+            "code": "method_not_allowed",
+            "message": "this route does not take that method; see /v1/openapi.json"
+        }
+    });
+    (StatusCode::METHOD_NOT_ALLOWED, axum::Json(body)).into_response()
+}
+
 /// Feedback as moderators send it: about a decision or an inline message.
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
