@@ -6,3 +6,4 @@ mod cli;
 mod logreg;
 mod server;
 mod sms;
+mod tally;
