@@ -99,7 +99,7 @@ impl Default for TallySettings {
     fn default() -> TallySettings {
         TallySettings {
             is_enabled: true,
-            sample_every: 20,
+            sample_every: 100,
             sample_all_below_per_sec: 20,
             capacity: 10_000,
             top_k: 500,
