@@ -348,7 +348,7 @@ impl Tallies {
         if !self.buckets.contains_key(&key) {
             let channels = self
                 .buckets
-                .range((start, String::new())..(start + 1, String::new()))
+                .range((start, String::new())..(start.saturating_add(1), String::new()))
                 .count();
             if channels >= MAX_CHANNELS {
                 self.counters
@@ -702,6 +702,21 @@ mod tests {
         tallies.open_from_ms = HOUR_MS;
         tallies.add(&mut extractor, &sample(10, "c0", "glaze"));
         assert_eq!(counters.dropped_late.load(Ordering::Relaxed), 1);
+    }
+
+    #[test]
+    fn counters_render_as_prometheus_families() {
+        let counters = TallyCounters::default();
+        counters.dropped_full.fetch_add(3, Ordering::Relaxed);
+        let mut out = String::new();
+        counters.render(&mut out);
+        assert!(out.contains("chaffgate_tally_dropped_total{reason=\"queue_full\"} 3\n"));
+        // Every sample line belongs to a family announced by a TYPE line
+        // (Prometheus text exposition format).
+        for line in out.lines().filter(|line| !line.starts_with('#')) {
+            let family = line.split(['{', ' ']).next().unwrap();
+            assert!(out.contains(&format!("# TYPE {family} ")), "{line}");
+        }
     }
 
     #[tokio::test]
