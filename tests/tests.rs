@@ -10,3 +10,4 @@ mod logreg;
 mod openapi;
 mod server;
 mod sms;
+mod tally;

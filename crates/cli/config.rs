@@ -12,6 +12,7 @@ use std::fmt;
 use std::path::{Path, PathBuf};
 
 use anyhow::{Context, bail};
+use chaffgate_metrics::{Direction, PageHinkleyParams};
 use chaffgate_model::UpdateRule;
 use chaffgate_server::Thresholds;
 use chaffgate_text::FeatureSettings;
@@ -29,6 +30,8 @@ pub struct Config {
     pub learner: LearnerConfig,
     pub features: FeatureSettings,
     pub model: ModelConfig,
+    pub tally: TallyConfig,
+    pub alarms: AlarmsConfig,
     pub channels: BTreeMap<String, ChannelConfig>,
 }
 
@@ -42,6 +45,8 @@ impl Default for Config {
             learner: LearnerConfig::default(),
             features: FeatureSettings::default(),
             model: ModelConfig::default(),
+            tally: TallyConfig::default(),
+            alarms: AlarmsConfig::default(),
             channels,
         }
     }
@@ -141,6 +146,151 @@ impl Default for LearnerConfig {
 /// The channel whose thresholds apply to messages that name no channel, or
 /// a channel without thresholds of its own.
 pub const DEFAULT_CHANNEL: &str = "default";
+
+/// Feature tallies for drift reports: which readable feature names a sample
+/// of scored messages carries, per time bucket and channel.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct TallyConfig {
+    /// Whether feature names are tallied at all.
+    pub enabled: bool,
+    /// Above the low-rate allowance, tally one decision in this many.
+    pub sample_every: u64,
+    /// Tally every decision while fewer than this many were scored in the
+    /// current second.
+    pub sample_all_below_per_sec: u64,
+    /// Counters per (bucket, channel) kept in memory.
+    pub capacity: u32,
+    /// Names written per (bucket, channel) at each flush.
+    pub top_k: u32,
+    /// Seconds between writes of the tallies to the database.
+    pub flush_every_secs: u64,
+    /// Sampled decisions waiting to be tallied before more are dropped.
+    pub queue: u32,
+    /// Whether character n-gram features are tallied too.
+    pub ngrams: bool,
+    /// Length of one bucket in seconds; must divide a day.
+    pub bucket_secs: u64,
+}
+
+impl Default for TallyConfig {
+    fn default() -> Self {
+        TallyConfig {
+            enabled: true,
+            sample_every: 100,
+            sample_all_below_per_sec: 20,
+            capacity: 10_000,
+            top_k: 500,
+            flush_every_secs: 60,
+            queue: 1024,
+            ngrams: false,
+            bucket_secs: 3600,
+        }
+    }
+}
+
+/// Live drift alarms (Page-Hinkley detectors) exported at `/metrics`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct AlarmsConfig {
+    /// Seconds the alarm gauge stays at 1 after a detector fires.
+    pub hold_secs: u64,
+    pub p_junk: PJunkDetectorConfig,
+    pub feedback_error: FeedbackErrorDetectorConfig,
+}
+
+impl Default for AlarmsConfig {
+    fn default() -> Self {
+        AlarmsConfig {
+            hold_secs: 3600,
+            p_junk: PJunkDetectorConfig::default(),
+            feedback_error: FeedbackErrorDetectorConfig::default(),
+        }
+    }
+}
+
+/// Which shift of a stream's mean raises an alarm.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum DirectionName {
+    Increase,
+    Decrease,
+    Either,
+}
+
+/// The detector over every decision's `p_junk`. Its defaults are justified
+/// in `crates/server/tests/p_junk_alarm_defaults.rs`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct PJunkDetectorConfig {
+    pub delta: f64,
+    pub lambda: f64,
+    pub min_samples: u64,
+    pub direction: DirectionName,
+}
+
+impl Default for PJunkDetectorConfig {
+    fn default() -> Self {
+        PJunkDetectorConfig {
+            delta: 0.05,
+            lambda: 50.0,
+            min_samples: 100,
+            direction: DirectionName::Either,
+        }
+    }
+}
+
+/// The detector over `|label - p_junk|` of labelled decisions. Its
+/// defaults are those of `crates/metrics/tests/page_hinkley_streams.rs`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct FeedbackErrorDetectorConfig {
+    pub delta: f64,
+    pub lambda: f64,
+    pub min_samples: u64,
+    pub direction: DirectionName,
+}
+
+impl Default for FeedbackErrorDetectorConfig {
+    fn default() -> Self {
+        FeedbackErrorDetectorConfig {
+            delta: 0.04,
+            lambda: 10.0,
+            min_samples: 30,
+            direction: DirectionName::Increase,
+        }
+    }
+}
+
+impl PJunkDetectorConfig {
+    pub fn params(&self) -> PageHinkleyParams {
+        detector_params(self.delta, self.lambda, self.min_samples, self.direction)
+    }
+}
+
+impl FeedbackErrorDetectorConfig {
+    pub fn params(&self) -> PageHinkleyParams {
+        detector_params(self.delta, self.lambda, self.min_samples, self.direction)
+    }
+}
+
+fn detector_params(
+    delta: f64,
+    lambda: f64,
+    min_samples: u64,
+    direction: DirectionName,
+) -> PageHinkleyParams {
+    PageHinkleyParams {
+        delta,
+        lambda,
+        min_samples,
+        direction: match direction {
+            DirectionName::Increase => Direction::Increase,
+            DirectionName::Decrease => Direction::Decrease,
+            DirectionName::Either => Direction::Either,
+        },
+    }
+}
 
 /// Which update rule learns, and the hyper-parameters of each.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -395,6 +545,8 @@ impl Config {
                 "learner.poll_every_ms = {poll}: must be between 10 and 3600000"
             ));
         }
+        self.validate_tally(&mut problems);
+        self.validate_alarms(&mut problems);
         if !self.channels.contains_key(DEFAULT_CHANNEL) {
             problems.push(format!(
                 "channels.{DEFAULT_CHANNEL} is missing: the default channel must have thresholds"
@@ -423,6 +575,79 @@ impl Config {
             return Ok(());
         }
         bail!("invalid configuration:\n  {}", problems.join("\n  "))
+    }
+
+    fn validate_tally(&self, problems: &mut Vec<String>) {
+        let tally = &self.tally;
+        let every = tally.sample_every;
+        if !(1..=1_000_000).contains(&every) {
+            problems.push(format!(
+                "tally.sample_every = {every}: must be between 1 and 1000000"
+            ));
+        }
+        let all_below = tally.sample_all_below_per_sec;
+        if all_below > 1_000_000 {
+            problems.push(format!(
+                "tally.sample_all_below_per_sec = {all_below}: must be between 0 and 1000000"
+            ));
+        }
+        let capacity = tally.capacity;
+        if !(10..=1_000_000).contains(&capacity) {
+            problems.push(format!(
+                "tally.capacity = {capacity}: must be between 10 and 1000000"
+            ));
+        }
+        let top_k = tally.top_k;
+        if top_k == 0 || top_k > capacity {
+            problems.push(format!(
+                "tally.top_k = {top_k}: must be at least 1 and at most tally.capacity ({capacity})"
+            ));
+        }
+        let flush = tally.flush_every_secs;
+        if !(1..=86_400).contains(&flush) {
+            problems.push(format!(
+                "tally.flush_every_secs = {flush}: must be between 1 and 86400"
+            ));
+        }
+        let queue = tally.queue;
+        if !(1..=1_000_000).contains(&queue) {
+            problems.push(format!(
+                "tally.queue = {queue}: must be between 1 and 1000000"
+            ));
+        }
+        let bucket = tally.bucket_secs;
+        if bucket == 0 || 86_400 % bucket != 0 {
+            problems.push(format!(
+                "tally.bucket_secs = {bucket}: must divide a day (86400), e.g. 3600"
+            ));
+        }
+    }
+
+    fn validate_alarms(&self, problems: &mut Vec<String>) {
+        let hold = self.alarms.hold_secs;
+        if !(1..=30 * 24 * 3600).contains(&hold) {
+            problems.push(format!(
+                "alarms.hold_secs = {hold}: must be between 1 and 2592000 (30 days)"
+            ));
+        }
+        for (name, params) in [
+            ("p_junk", self.alarms.p_junk.params()),
+            ("feedback_error", self.alarms.feedback_error.params()),
+        ] {
+            // Written so that NaN fails too.
+            let delta = params.delta;
+            if !(delta >= 0.0 && delta.is_finite()) {
+                problems.push(format!(
+                    "alarms.{name}.delta = {delta}: must be a finite number, at least 0"
+                ));
+            }
+            let lambda = params.lambda;
+            if !(lambda > 0.0 && lambda.is_finite()) {
+                problems.push(format!(
+                    "alarms.{name}.lambda = {lambda}: must be a finite number above 0"
+                ));
+            }
+        }
     }
 
     /// The thresholds for `channel`, falling back to the default channel.
@@ -573,6 +798,34 @@ mod tests {
             text.contains("model.alpha") || text.contains("alpha"),
             "{text}"
         );
+    }
+
+    #[test]
+    fn tally_and_alarm_settings_are_checked_and_overridable() {
+        let config = load_str(
+            "[alarms.p_junk]\nlambda = 8.0\n",
+            &[
+                ("CHAFFGATE_TALLY_FLUSH_EVERY_SECS", "1"),
+                ("CHAFFGATE_ALARMS_P_JUNK_DIRECTION", "increase"),
+            ],
+        )
+        .unwrap();
+        assert_eq!(config.tally.flush_every_secs, 1);
+        // Keys not given keep the detector's own defaults.
+        assert_eq!(config.alarms.p_junk.lambda, 8.0);
+        assert_eq!(config.alarms.p_junk.delta, 0.05);
+        assert_eq!(config.alarms.p_junk.direction, DirectionName::Increase);
+        assert_eq!(config.alarms.feedback_error.delta, 0.04);
+        let err = load_str(
+            "[tally]\ntop_k = 20000\nbucket_secs = 7000\n[alarms.feedback_error]\nlambda = 0.0\n",
+            &[("CHAFFGATE_ALARMS_P_JUNK_DELTA", "nan")],
+        )
+        .unwrap_err();
+        let text = format!("{err:#}");
+        assert!(text.contains("tally.top_k = 20000"), "{text}");
+        assert!(text.contains("tally.bucket_secs = 7000"), "{text}");
+        assert!(text.contains("alarms.feedback_error.lambda = 0"), "{text}");
+        assert!(text.contains("alarms.p_junk.delta = NaN"), "{text}");
     }
 
     #[test]

@@ -205,6 +205,9 @@ pub fn run(base: &Config, args: DemoArgs) -> anyhow::Result<()> {
     };
     config.audit.keep_text = true;
     config.audit.accept_client_time = true;
+    // The demo's rate is low: name the features of every decision so that
+    // the drift report's feature lists rest on the whole stream.
+    config.tally.sample_every = 1;
     config.validate().context("demo settings")?;
 
     let runtime = crate::runtime()?;

@@ -18,8 +18,8 @@ use anyhow::{Context, bail};
 use chaffgate_model::Model;
 use chaffgate_server::model_file::{LoadedModel, load_model_file, save_model_file};
 use chaffgate_server::{
-    AckMode, AuditSettings, Channels, Judge, LearnerSettings, ServerSettings, Thresholds,
-    TokenBook, start,
+    AckMode, AlarmSettings, AuditSettings, Channels, Judge, LearnerSettings, ServerSettings,
+    TallySettings, Thresholds, TokenBook, start,
 };
 use chaffgate_store::{NewCheckpoint, Store};
 use chaffgate_text::HashKey;
@@ -50,6 +50,8 @@ pub fn server_settings(config: &Config) -> anyhow::Result<ServerSettings> {
         .filter(|name| name.as_str() != DEFAULT_CHANNEL)
         .map(|name| (name.clone(), thresholds(name)))
         .collect();
+    let tally = &config.tally;
+    let alarms = &config.alarms;
     Ok(ServerSettings {
         listen,
         max_body_bytes: usize::try_from(config.server.max_body_bytes)?,
@@ -67,6 +69,23 @@ pub fn server_settings(config: &Config) -> anyhow::Result<ServerSettings> {
             accept_client_time: config.audit.accept_client_time,
         },
         channels: Channels::new(by_name, thresholds(DEFAULT_CHANNEL)),
+        tally: TallySettings {
+            is_enabled: tally.enabled,
+            sample_every: tally.sample_every,
+            sample_all_below_per_sec: tally.sample_all_below_per_sec,
+            capacity: tally.capacity as usize,
+            top_k: tally.top_k as usize,
+            flush_every: Duration::from_secs(tally.flush_every_secs),
+            queue: tally.queue as usize,
+            has_ngrams: tally.ngrams,
+            bucket: Duration::from_secs(tally.bucket_secs),
+        },
+        alarms: AlarmSettings::new(
+            alarms.p_junk.params(),
+            alarms.feedback_error.params(),
+            Duration::from_secs(alarms.hold_secs),
+        )
+        .context("alarms")?,
     })
 }
 
@@ -248,4 +267,16 @@ pub async fn shutdown_signal() {
         () = terminate => {}
     }
     tracing::info!("shutdown requested: finishing in-flight requests");
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn default_config_gives_the_servers_default_tally_and_alarms() {
+        let settings = server_settings(&Config::default()).unwrap();
+        assert_eq!(settings.tally, TallySettings::default());
+        assert_eq!(settings.alarms, AlarmSettings::default());
+    }
 }

@@ -9,7 +9,9 @@
 //! also holds the population stability index of `p_junk` between two
 //! windows ([`psi`]), a reliability table with the expected calibration
 //! error ([`calibration`]), and a Page-Hinkley change detector over a
-//! stream of per-message errors ([`PageHinkley`]).
+//! stream of per-message errors ([`PageHinkley`]). For feature tallies it
+//! holds [`SpaceSaving`], a bounded summary of the most frequent items of a
+//! stream with guaranteed error bounds.
 //!
 //! Every function takes two parallel slices, `p_junk[i]` being the score of
 //! message `i` and `is_junk[i]` its true label, and knows nothing else: no
@@ -53,6 +55,7 @@ mod input;
 mod page_hinkley;
 mod probability;
 mod ranking;
+mod space_saving;
 mod stability;
 mod summary;
 
@@ -62,5 +65,6 @@ pub use error::{Class, MetricsError};
 pub use page_hinkley::{Direction, PageHinkley, PageHinkleyParams};
 pub use probability::{LOG_LOSS_EPS, brier_score, log_loss};
 pub use ranking::{RecallAtRate, junk_recall_at_false_junk_rate, one_minus_roca_pct, roc_auc};
+pub use space_saving::{Counter, SpaceSaving};
 pub use stability::{PSI_SHARE_EPS, PsiBand, PsiBin, PsiReport, ScoreBins, psi, psi_band};
 pub use summary::{Summary, summarize};

@@ -28,11 +28,14 @@ pub struct BatchFigures {
 }
 
 /// Starts the writer; it ends after `jobs_rx` is closed and drained.
+/// `on_batch` sees each batch's rows, in the order received, and figures
+/// once the commit was tried (it feeds metrics and the `p_junk` drift
+/// detector, so it must be quick).
 pub fn spawn_writer(
     store: Store,
     max_batch_rows: usize,
     mut jobs_rx: mpsc::Receiver<AuditJob>,
-    on_batch: impl Fn(BatchFigures) + Send + 'static,
+    on_batch: impl Fn(&[NewDecision], BatchFigures) + Send + 'static,
 ) -> JoinHandle<()> {
     tokio::spawn(async move {
         let max_batch_rows = max_batch_rows.max(1);
@@ -52,10 +55,13 @@ pub fn spawn_writer(
             let started = Instant::now();
             let result = store.insert_decisions(&rows).await;
             let commit_us = u64::try_from(started.elapsed().as_micros()).unwrap_or(u64::MAX);
-            on_batch(BatchFigures {
-                rows: rows.len(),
-                commit_us,
-            });
+            on_batch(
+                &rows,
+                BatchFigures {
+                    rows: rows.len(),
+                    commit_us,
+                },
+            );
             let outcome = match &result {
                 Ok(()) => Ok(()),
                 Err(err) => {

@@ -44,6 +44,9 @@ pub struct Judgement {
     pub model_seq: i64,
     /// Hex SHA-256 of the message's normalised content (field by field).
     pub content_sha256: String,
+    /// `(slot, w_i * x_i)` of every feature, ascending by slot, when asked
+    /// for (feature tallies); empty otherwise.
+    pub contributions: Vec<(u32, f64)>,
 }
 
 pub struct Judge {
@@ -115,6 +118,17 @@ impl Judge {
     /// Scores one message with the current model and names up to
     /// `reason_count` reasons.
     pub fn judge(&self, message: &Message, reason_count: usize) -> Judgement {
+        self.judge_with(message, reason_count, false)
+    }
+
+    /// Like [`Judge::judge`]; with `has_contributions` the judgement also
+    /// carries every feature's contribution from the same model snapshot.
+    pub fn judge_with(
+        &self,
+        message: &Message,
+        reason_count: usize,
+        has_contributions: bool,
+    ) -> Judgement {
         let snapshot = self.front.load();
         let mut scratch = self.take_scratch();
         scratch.extractor.extract(message, &mut scratch.features);
@@ -126,6 +140,13 @@ impl Judge {
             let top = snapshot.model.explain(x, reason_count);
             name_contributions(&mut scratch.extractor, message, &top)
         };
+        let contributions = if has_contributions {
+            x.iter()
+                .map(|&(index, value)| (index, snapshot.model.weight(index) * f64::from(value)))
+                .collect()
+        } else {
+            Vec::new()
+        };
         let content_sha256 = content_digest(&mut scratch.extractor, message);
         let model_seq = snapshot.model_seq;
         self.put_scratch(scratch);
@@ -134,6 +155,7 @@ impl Judge {
             reasons,
             model_seq,
             content_sha256,
+            contributions,
         }
     }
 
@@ -271,6 +293,20 @@ mod tests {
         assert_eq!(judgement.model_seq, 20);
         assert_eq!(judgement.reasons.len(), 3);
         assert!(judgement.reasons[0].contribution > 0.0);
+        assert!(judgement.contributions.is_empty());
+        // The contributions add up to the margin: logit(p_junk) (the
+        // logistic function's inverse, common practice, no source).
+        let full = judge.judge_with(&message("claim your prize"), 3, true);
+        assert_eq!(full.contributions.len(), x.len());
+        assert!(full.contributions.windows(2).all(|w| w[0].0 < w[1].0));
+        let margin: f64 = full.contributions.iter().map(|c| c.1).sum();
+        let logit = (full.p_junk / (1.0 - full.p_junk)).ln();
+        assert!((margin - logit).abs() < 1e-9, "{margin} vs {logit}");
+        assert!(
+            full.contributions
+                .iter()
+                .any(|c| c.1 == full.reasons[0].contribution)
+        );
     }
 
     #[test]

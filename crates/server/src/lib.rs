@@ -4,8 +4,10 @@
 //! [`start`] to get the state and the background tasks, binds a listener,
 //! and hands both to [`serve`] with a shutdown future. On shutdown the
 //! server stops accepting, finishes in-flight requests, then drops the
-//! audit sender so the writer commits what is queued and ends.
+//! audit sender so the writer commits what is queued and ends, and the
+//! tally sender so the tally task writes its last feature tallies.
 
+pub mod alarms;
 pub mod audit;
 pub mod auth;
 pub mod error;
@@ -18,6 +20,7 @@ pub mod pages;
 pub mod routes;
 pub mod settings;
 pub mod state;
+pub mod tally;
 
 use std::future::Future;
 use std::sync::Arc;
@@ -31,12 +34,14 @@ use tokio::net::TcpListener;
 use tokio::sync::mpsc;
 use tokio::task::JoinHandle;
 
+pub use crate::alarms::{AlarmSettings, DriftAlarms};
 pub use crate::auth::TokenBook;
 pub use crate::judge::{Judge, Judgement, Reason, Snapshot};
 pub use crate::learner::{Learner, LearnerSettings, LearnerStatus};
 pub use crate::metrics::Metrics;
 pub use crate::settings::{AckMode, AuditSettings, Channels, ServerSettings, Thresholds};
 pub use crate::state::{AppState, StateParts};
+pub use crate::tally::TallySettings;
 
 /// Rows waiting for the audit writer before handlers wait to enqueue.
 const AUDIT_QUEUE: usize = 8192;
@@ -47,6 +52,7 @@ pub struct Tasks {
     learner: JoinHandle<()>,
     janitor: JoinHandle<()>,
     token_refresher: JoinHandle<()>,
+    tally: JoinHandle<()>,
 }
 
 /// How often expired decision inputs are deleted.
@@ -77,12 +83,24 @@ pub fn start(
     let learner = learner.spawn(learner_rx);
     let (audit_tx, audit_rx) = mpsc::channel(AUDIT_QUEUE);
     let batch_metrics = Arc::clone(&metrics);
+    let alarms = Arc::new(DriftAlarms::new(&settings.alarms));
+    let batch_alarms = Arc::clone(&alarms);
     let audit = audit::spawn_writer(
         store.clone(),
         settings.audit.max_batch_rows,
         audit_rx,
-        move |figures| batch_metrics.count_audit_batch(figures),
+        move |rows, figures| {
+            batch_metrics.count_audit_batch(figures);
+            batch_alarms
+                .p_junk
+                .observe(rows.iter().map(|row| row.p_junk), state::now_ms());
+        },
     );
+    // Each run writes its own part of a tally bucket; see `tally`.
+    let run_id = ulid::Ulid::new().to_string();
+    let extractor = chaffgate_text::Extractor::new(judge.settings().clone(), judge.key().clone());
+    let (tally, tally_task) =
+        tally::spawn(settings.tally.clone(), store.clone(), extractor, run_id);
     let state = AppState::new(StateParts {
         settings,
         judge,
@@ -92,6 +110,8 @@ pub fn start(
         learner: learner_status,
         learner_tx,
         tokens: Arc::clone(&tokens),
+        tally,
+        alarms,
     });
     let token_refresher = tokio::spawn(auth::keep_fresh(tokens, store.clone()));
     let janitor = tokio::spawn(purge_expired_inputs(store.clone()));
@@ -102,6 +122,7 @@ pub fn start(
             learner,
             janitor,
             token_refresher,
+            tally: tally_task,
         },
     )
 }
@@ -251,6 +272,10 @@ pub async fn serve(
     // sender) is gone now, so the writer drains and ends.
     if let Err(err) = tasks.audit.await {
         tracing::error!(error = %err, "audit writer stopped abnormally");
+    }
+    // And the tally sender: the tally task writes its last tallies.
+    if let Err(err) = tasks.tally.await {
+        tracing::error!(error = %err, "tally task stopped abnormally");
     }
     // Likewise the learner's wake-up sender: it catches up, checkpoints
     // and ends.

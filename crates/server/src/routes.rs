@@ -21,6 +21,7 @@ use crate::judge::Reason;
 use crate::metrics::LearnerGauges;
 use crate::settings::AckMode;
 use crate::state::{AppState, now_ms};
+use crate::tally::TallySample;
 
 /// One message to score, as clients send it: message fields, a raw mail
 /// (`raw` text or `raw_b64` bytes), or both.
@@ -201,13 +202,17 @@ fn decide(
         received_at_ms,
     } = parts;
     let settings = state.settings();
-    let judgement = state.judge().judge(&message, settings.reasons);
+    let now = now_ms();
+    let created_at_ms = received_at_ms.unwrap_or(now);
+    // The sampling rate follows the service's own load, so its clock.
+    let is_tallied = state.tally().wants(now);
+    let mut judgement = state
+        .judge()
+        .judge_with(&message, settings.reasons, is_tallied);
     let (channel, thresholds) = settings.channels.resolve(message.channel.as_deref());
     let channel = channel.to_owned();
     let verdict = thresholds.verdict(judgement.p_junk);
     let id = state.next_decision_id();
-    let now = now_ms();
-    let created_at_ms = received_at_ms.unwrap_or(now);
     let message_json = serde_json::to_string(&message).map_err(ApiError::internal)?;
     let reasons_json = serde_json::to_string(&judgement.reasons).map_err(ApiError::internal)?;
     let window_ms = i64::try_from(settings.audit.feedback_window.as_millis()).unwrap_or(i64::MAX);
@@ -239,6 +244,14 @@ fn decide(
         AckMode::AfterQueue => (None, None),
     };
     state.metrics().count_verdict(verdict);
+    if is_tallied {
+        state.tally().offer(TallySample {
+            created_at_ms,
+            channel: channel.clone(),
+            message,
+            contributions: std::mem::take(&mut judgement.contributions),
+        });
+    }
     let answer = DecisionAnswer {
         decision_id: id,
         p_junk: judgement.p_junk,
@@ -573,6 +586,10 @@ pub async fn feedback(
             ));
         }
     };
+    let labelled_decision = match &target {
+        FeedbackTarget::Decision(id) => Some(id.clone()),
+        FeedbackTarget::Inline { .. } => None,
+    };
     let new = NewFeedback {
         target,
         label,
@@ -581,6 +598,7 @@ pub async fn feedback(
         idempotency_key: request.idempotency_key,
     };
     let outcome = state.store().append_feedback(&new, now_ms()).await?;
+    let is_first_label = matches!(outcome, FeedbackOutcome::Inserted { .. });
     let (status, answer) = match outcome {
         FeedbackOutcome::Inserted { seq } => (
             StatusCode::CREATED,
@@ -614,7 +632,31 @@ pub async fn feedback(
         state.metrics().count_feedback(label);
         state.wake_learner();
     }
+    if is_first_label && let Some(id) = labelled_decision {
+        observe_feedback_error(&state, &id, label).await;
+    }
     Ok((status, axum::Json(answer)).into_response())
+}
+
+/// Feeds `|label - p_junk|` of a decision just labelled for the first time
+/// to the feedback-error drift detector (`label` 1 for junk, 0 for fine).
+async fn observe_feedback_error(state: &AppState, id: &DecisionId, label: chaffgate_store::Label) {
+    match state.store().decision(id).await {
+        Ok(Some(row)) => {
+            let truth = match label {
+                chaffgate_store::Label::Junk => 1.0,
+                chaffgate_store::Label::Fine => 0.0,
+            };
+            state
+                .alarms()
+                .feedback_error
+                .observe([(truth - row.p_junk).abs()], now_ms());
+        }
+        Ok(None) => {}
+        Err(err) => {
+            tracing::warn!(error = %err, "reading a labelled decision for the drift detector failed");
+        }
+    }
 }
 
 #[derive(Debug, Serialize)]
@@ -680,7 +722,9 @@ pub async fn learner_gauges(state: &AppState) -> Result<LearnerGauges, ApiError>
 /// `GET /metrics`
 pub async fn metrics_text(State(state): State<AppState>) -> Result<Response, ApiError> {
     let gauges = learner_gauges(&state).await?;
-    let body = state.metrics().render(gauges);
+    let mut body = state.metrics().render(gauges);
+    state.alarms().render(&mut body, now_ms());
+    state.tally().counters().render(&mut body);
     let content_type = [(
         axum::http::header::CONTENT_TYPE,
         "text/plain; version=0.0.4; charset=utf-8",

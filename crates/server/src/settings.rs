@@ -7,6 +7,9 @@ use std::time::Duration;
 
 use chaffgate_store::Verdict;
 
+use crate::alarms::AlarmSettings;
+use crate::tally::TallySettings;
+
 /// Everything the HTTP layer and its background tasks need to know.
 #[derive(Debug, Clone)]
 pub struct ServerSettings {
@@ -24,6 +27,10 @@ pub struct ServerSettings {
     pub audit: AuditSettings,
     /// Verdict thresholds per channel; `default` always present.
     pub channels: Channels,
+    /// Feature tallies for drift reports.
+    pub tally: TallySettings,
+    /// Live drift alarms.
+    pub alarms: AlarmSettings,
 }
 
 /// When the answer to a score request is sent.
@@ -129,6 +136,8 @@ impl ServerSettings {
                     review: 0.4,
                 },
             ),
+            tally: TallySettings::default(),
+            alarms: AlarmSettings::default(),
         }
     }
 }

@@ -6,12 +6,14 @@ use std::time::{SystemTime, UNIX_EPOCH};
 use chaffgate_store::Store;
 use tokio::sync::mpsc;
 
+use crate::alarms::DriftAlarms;
 use crate::audit::AuditJob;
 use crate::auth::TokenBook;
 use crate::judge::Judge;
 use crate::learner::{LearnerCommand, LearnerStatus};
 use crate::metrics::Metrics;
 use crate::settings::ServerSettings;
+use crate::tally::TallyFeed;
 
 #[derive(Clone)]
 pub struct AppState {
@@ -27,6 +29,8 @@ struct Inner {
     learner: Arc<LearnerStatus>,
     learner_tx: mpsc::Sender<LearnerCommand>,
     tokens: Arc<TokenBook>,
+    tally: TallyFeed,
+    alarms: Arc<DriftAlarms>,
 }
 
 /// Everything an [`AppState`] holds, gathered by `start`.
@@ -39,6 +43,8 @@ pub struct StateParts {
     pub learner: Arc<LearnerStatus>,
     pub learner_tx: mpsc::Sender<LearnerCommand>,
     pub tokens: Arc<TokenBook>,
+    pub tally: TallyFeed,
+    pub alarms: Arc<DriftAlarms>,
 }
 
 impl AppState {
@@ -52,6 +58,8 @@ impl AppState {
             learner,
             learner_tx,
             tokens,
+            tally,
+            alarms,
         } = parts;
         AppState {
             inner: Arc::new(Inner {
@@ -63,6 +71,8 @@ impl AppState {
                 learner,
                 learner_tx,
                 tokens,
+                tally,
+                alarms,
             }),
         }
     }
@@ -98,6 +108,16 @@ impl AppState {
 
     pub fn learner(&self) -> &LearnerStatus {
         &self.inner.learner
+    }
+
+    /// The request side of feature tallies.
+    pub fn tally(&self) -> &TallyFeed {
+        &self.inner.tally
+    }
+
+    /// The live drift detectors.
+    pub fn alarms(&self) -> &DriftAlarms {
+        &self.inner.alarms
     }
 
     /// Tells the learner a feedback row was committed. A wake-up already

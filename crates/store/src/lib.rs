@@ -1,6 +1,6 @@
 //! chaffgate's durable records, kept in one SQLite file: the audit log of
-//! decisions, the feedback log, checkpoints, the model's history and API
-//! tokens.
+//! decisions, the feedback log, checkpoints, the model's history, API
+//! tokens and feature tallies for drift reports.
 //!
 //! Owns every SQL statement and, through `sqlx::migrate!`, the schema in
 //! `migrations/` at the workspace root. It deals in rows: messages, reasons
@@ -44,6 +44,7 @@ mod decisions;
 mod error;
 mod feedback;
 mod queue;
+mod tallies;
 mod tokens;
 mod types;
 
@@ -63,6 +64,10 @@ pub use decisions::{
 pub use error::StoreError;
 pub use feedback::{FeedbackOutcome, FeedbackRow, FeedbackTarget, NewFeedback};
 pub use queue::{QueueFilter, QueueOrder, QueuePage, QueueScope};
+pub use tallies::{
+    ContributionRank, FEATURE_DRIFT_MIN_MESSAGES, FeatureCount, FeatureDrift, FeatureTally,
+    PartFeature, ShareChange, TallyPart, feature_drift, feature_drift_with,
+};
 pub use tokens::TokenRow;
 pub use types::{DecisionId, FeedbackKind, FeedbackSeq, Label, Role, UnknownWord, Verdict};
 
@@ -181,6 +186,8 @@ mod tests {
                 "checkpoints",
                 "decision_inputs",
                 "decisions",
+                "feature_tallies",
+                "feature_tally_parts",
                 "feedback",
                 "model_events",
                 "tokens"
@@ -205,7 +212,7 @@ mod tests {
             rows
         };
         let before = migrations(store.clone()).await;
-        assert_eq!(before, [(1, true)]);
+        assert_eq!(before, [(1, true), (2, true)]);
         store.close().await;
 
         let store = Store::open(&dir.path().join("chaffgate.db")).await.unwrap();
