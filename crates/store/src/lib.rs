@@ -43,6 +43,7 @@ mod checkpoints;
 mod decisions;
 mod error;
 mod feedback;
+mod report_rows;
 mod tokens;
 mod types;
 
@@ -61,6 +62,9 @@ pub use decisions::{
 };
 pub use error::StoreError;
 pub use feedback::{FeedbackOutcome, FeedbackRow, FeedbackTarget, NewFeedback};
+pub use report_rows::{
+    FeedbackImport, FeedbackTally, HOUR_MS, HourTally, LabelledDecision, MAX_INNER_EDGES,
+};
 pub use tokens::TokenRow;
 pub use types::{DecisionId, FeedbackKind, FeedbackSeq, Label, Role, UnknownWord, Verdict};
 
@@ -203,7 +207,7 @@ mod tests {
             rows
         };
         let before = migrations(store.clone()).await;
-        assert_eq!(before, [(1, true)]);
+        assert_eq!(before, [(1, true), (3, true)]);
         store.close().await;
 
         let store = Store::open(&dir.path().join("chaffgate.db")).await.unwrap();
