@@ -16,6 +16,7 @@ use std::time::Duration;
 
 use anyhow::{Context, bail};
 use chaffgate_model::Model;
+use chaffgate_server::reports::ReportDefaults;
 use chaffgate_server::model_file::{LoadedModel, load_model_file, save_model_file};
 use chaffgate_server::{
     AckMode, AuditSettings, Channels, Judge, LearnerSettings, ServerSettings, Thresholds,
@@ -43,6 +44,7 @@ pub fn server_settings(config: &Config) -> anyhow::Result<ServerSettings> {
         .listen
         .parse()
         .with_context(|| format!("server.listen = {:?}", config.server.listen))?;
+    let (baseline, current) = config.report_windows()?;
     let thresholds = |name: &str| config.channel(Some(name)).thresholds();
     let by_name: BTreeMap<String, Thresholds> = config
         .channels
@@ -66,6 +68,11 @@ pub fn server_settings(config: &Config) -> anyhow::Result<ServerSettings> {
             feedback_window: Duration::from_secs(config.audit.feedback_window_secs),
         },
         channels: Channels::new(by_name, thresholds(DEFAULT_CHANNEL)),
+        reports: ReportDefaults {
+            baseline,
+            current,
+            settings: config.report_settings(),
+        },
     })
 }
 

@@ -13,6 +13,7 @@ pub mod judge;
 pub mod learner;
 pub mod metrics;
 pub mod model_file;
+pub mod reports;
 pub mod routes;
 pub mod settings;
 pub mod state;
@@ -114,6 +115,7 @@ pub fn app(state: AppState) -> Router {
         .route("/v1/feedback", post(routes::feedback))
         .route("/v1/model", get(routes::model))
         .route("/v1/model/rollback", post(routes::rollback))
+        .route("/v1/reports/drift", get(reports::drift))
         .route("/healthz", get(routes::healthz))
         .route("/readyz", get(routes::readyz))
         .route("/metrics", get(routes::metrics_text))

@@ -24,6 +24,8 @@ pub struct ServerSettings {
     pub audit: AuditSettings,
     /// Verdict thresholds per channel; `default` always present.
     pub channels: Channels,
+    /// What drift reports use unless a request says otherwise.
+    pub reports: crate::reports::ReportDefaults,
 }
 
 /// When the answer to a score request is sent.
@@ -125,6 +127,7 @@ impl ServerSettings {
                     review: 0.4,
                 },
             ),
+            reports: crate::reports::ReportDefaults::default(),
         }
     }
 }
