@@ -3,6 +3,7 @@
 mod util;
 
 mod cli;
+mod drift;
 mod logreg;
 mod server;
 mod sms;

@@ -309,9 +309,14 @@ impl ReportsConfig {
                 "reports.false_junk_target = {target}: must be at least 0 and below 1"
             ));
         }
-        for (key, delta) in [("error_delta", self.error_delta), ("p_junk_delta", self.p_junk_delta)] {
+        for (key, delta) in [
+            ("error_delta", self.error_delta),
+            ("p_junk_delta", self.p_junk_delta),
+        ] {
             if !(delta >= 0.0 && delta.is_finite()) {
-                problems.push(format!("reports.{key} = {delta}: must be a finite number at least 0"));
+                problems.push(format!(
+                    "reports.{key} = {delta}: must be a finite number at least 0"
+                ));
             }
         }
         for (key, lambda) in [
@@ -319,7 +324,9 @@ impl ReportsConfig {
             ("p_junk_lambda", self.p_junk_lambda),
         ] {
             if !(lambda > 0.0 && lambda.is_finite()) {
-                problems.push(format!("reports.{key} = {lambda}: must be a finite number above 0"));
+                problems.push(format!(
+                    "reports.{key} = {lambda}: must be a finite number above 0"
+                ));
             }
         }
         if self.p_junk_block == 0 {
@@ -739,7 +746,10 @@ mod tests {
         assert_eq!(baseline, Duration::from_secs(7 * 24 * 3600));
         assert_eq!(current, Duration::from_secs(90 * 60));
         // The defaults are the report engine's own.
-        assert_eq!(Config::default().report_settings(), ReportSettings::default());
+        assert_eq!(
+            Config::default().report_settings(),
+            ReportSettings::default()
+        );
     }
 
     #[test]

@@ -16,8 +16,8 @@ use std::time::Duration;
 
 use anyhow::{Context, bail};
 use chaffgate_model::Model;
-use chaffgate_server::reports::ReportDefaults;
 use chaffgate_server::model_file::{LoadedModel, load_model_file, save_model_file};
+use chaffgate_server::reports::ReportDefaults;
 use chaffgate_server::{
     AckMode, AuditSettings, Channels, Judge, LearnerSettings, ServerSettings, Thresholds,
     TokenBook, start,

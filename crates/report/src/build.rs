@@ -30,10 +30,10 @@ use chaffgate_store::{
 
 use crate::error::ReportError;
 use crate::report::{
-    Activity, ActivityWindow, Alarm, CheckpointEntry, Detector, DriftReport, Help,
-    ModelEventEntry, ModeratorActivity, OperatingPoint, Overturns, QualityBucket, QualityShift,
-    QualityWindow, ScopeReport, ScoreShift, ScoreWindow, SettingsUsed, Shift, ThresholdAdvice,
-    VerdictBucket, VerdictMix, Window, WindowName, Windows,
+    Activity, ActivityWindow, Alarm, CheckpointEntry, Detector, DriftReport, Help, ModelEventEntry,
+    ModeratorActivity, OperatingPoint, Overturns, QualityBucket, QualityShift, QualityWindow,
+    ScopeReport, ScoreShift, ScoreWindow, SettingsUsed, Shift, ThresholdAdvice, VerdictBucket,
+    VerdictMix, Window, WindowName, Windows,
 };
 use crate::settings::{ReportRequest, ReportSettings, VerdictThresholds, validate};
 use crate::time::{format_span, rfc3339, span_ms};
@@ -61,16 +61,28 @@ pub async fn build(store: &Store, request: &ReportRequest) -> Result<DriftReport
     let edges = bins.edges();
     let inner_edges = &edges[1..edges.len() - 1];
     let channel = request.channel.as_deref();
-    let (start, split, end) = (layout.baseline_start_ms, layout.current_start_ms, layout.end_ms);
+    let (start, split, end) = (
+        layout.baseline_start_ms,
+        layout.current_start_ms,
+        layout.end_ms,
+    );
 
-    let (baseline_tallies, current_tallies, labelled, feedback, checkpoints, events) = tokio::try_join!(
-        store.hour_tallies(start, split, inner_edges, channel),
-        store.hour_tallies(split, end, inner_edges, channel),
+    // Each window is read in two halves on two connections, so that the
+    // scan of a long baseline uses both cores of a small machine.
+    let [b1, b2] = halves(start, split);
+    let [c1, c2] = halves(split, end);
+    let (b1, b2, c1, c2, labelled, feedback, checkpoints, events) = tokio::try_join!(
+        store.hour_tallies(b1.0, b1.1, inner_edges, channel),
+        store.hour_tallies(b2.0, b2.1, inner_edges, channel),
+        store.hour_tallies(c1.0, c1.1, inner_edges, channel),
+        store.hour_tallies(c2.0, c2.1, inner_edges, channel),
         store.labelled_decisions(start, end, channel),
         store.feedback_tallies(start, split, end, channel),
         store.checkpoints_between(start, end),
         store.model_events_between(start, end),
     )?;
+    let baseline_tallies: Vec<HourTally> = b1.into_iter().chain(b2).collect();
+    let current_tallies: Vec<HourTally> = c1.into_iter().chain(c2).collect();
 
     // Gather each scope's rows: all of them, and each channel's.
     let mut overall = ScopeRows::new(&layout, bins.bin_count());
@@ -120,7 +132,12 @@ pub async fn build(store: &Store, request: &ReportRequest) -> Result<DriftReport
 
     let mut alarms = error_alarms(&labelled, overall_name.as_deref(), &layout, settings)?;
     let hours = baseline_tallies.iter().chain(&current_tallies);
-    alarms.extend(p_junk_alarms(hours, overall_name.as_deref(), &layout, settings)?);
+    alarms.extend(p_junk_alarms(
+        hours,
+        overall_name.as_deref(),
+        &layout,
+        settings,
+    )?);
     alarms.sort_by(|a, b| {
         (a.at_ms, a.detector as u8, &a.channel).cmp(&(b.at_ms, b.detector as u8, &b.channel))
     });
@@ -179,6 +196,14 @@ pub async fn build(store: &Store, request: &ReportRequest) -> Result<DriftReport
         activity,
         features: None,
     })
+}
+
+/// `[from, until)` cut in two at the UTC hour nearest below its middle
+/// (the first half empty when the range lies within one hour).
+fn halves(from: i64, until: i64) -> [(i64, i64); 2] {
+    let middle = from + (until - from) / 2;
+    let cut = (middle.div_euclid(HOUR_MS) * HOUR_MS).clamp(from, until);
+    [(from, cut), (cut, until)]
 }
 
 /// Where the windows and their buckets lie.
@@ -617,8 +642,8 @@ fn advise(
     let p_junk: Vec<f64> = rows.iter().map(|row| row.p_junk).collect();
     let is_junk: Vec<bool> = rows.iter().map(|row| row.is_junk).collect();
     let point = |threshold: f64| -> Result<OperatingPoint, ReportError> {
-        let counts = confusion(&p_junk, &is_junk, threshold)
-            .map_err(metric("counts at a threshold"))?;
+        let counts =
+            confusion(&p_junk, &is_junk, threshold).map_err(metric("counts at a threshold"))?;
         Ok(OperatingPoint {
             threshold: Some(threshold),
             fine_judged_junk: counts.fine_flagged,
@@ -659,8 +684,8 @@ fn run_detectors<'a>(
     settings: crate::settings::DetectorSettings,
     layout: &Layout,
 ) -> Result<Vec<Alarm>, ReportError> {
-    let fresh = PageHinkley::new(settings.params(direction))
-        .map_err(metric("a change detector"))?;
+    let fresh =
+        PageHinkley::new(settings.params(direction)).map_err(metric("a change detector"))?;
     let mut detectors: BTreeMap<Option<&str>, PageHinkley> = BTreeMap::new();
     let mut alarms = Vec::new();
     for (key, at_ms, value) in samples {
@@ -979,14 +1004,26 @@ mod tests {
         assert_eq!(scores.psi_band, Some(PsiBand::Large));
         assert!(close(b.mean_p_junk.unwrap(), 0.45));
         assert!(close(c.mean_p_junk.unwrap(), 0.625));
-        assert_eq!((b.verdicts.junk, b.verdicts.review, b.verdicts.fine), (1, 1, 2));
-        assert_eq!((c.verdicts.junk, c.verdicts.review, c.verdicts.fine), (1, 2, 1));
+        assert_eq!(
+            (b.verdicts.junk, b.verdicts.review, b.verdicts.fine),
+            (1, 1, 2)
+        );
+        assert_eq!(
+            (c.verdicts.junk, c.verdicts.review, c.verdicts.fine),
+            (1, 2, 1)
+        );
         assert_eq!((b.model_seq_min, b.model_seq_max), (Some(1), Some(4)));
         // Hourly buckets: the baseline's two hours, the current one hour.
         let hours: Vec<(u64, u64, u64)> = b
             .over_time
             .iter()
-            .map(|bucket| (bucket.verdicts.junk, bucket.verdicts.review, bucket.verdicts.fine))
+            .map(|bucket| {
+                (
+                    bucket.verdicts.junk,
+                    bucket.verdicts.review,
+                    bucket.verdicts.fine,
+                )
+            })
             .collect();
         assert_eq!(hours, [(0, 0, 2), (1, 1, 0)]);
         assert_eq!(b.over_time[1].start, "2027-01-15T09:00:00.000Z");
@@ -1026,7 +1063,11 @@ mod tests {
         // Baseline: d1 fine (judged fine), d3 junk (review), d4 junk after
         // its correction (judged junk); d2's only label is revoked.
         assert_eq!(
-            (q.baseline.labelled, q.baseline.labelled_junk, q.baseline.labelled_fine),
+            (
+                q.baseline.labelled,
+                q.baseline.labelled_junk,
+                q.baseline.labelled_fine
+            ),
             (3, 2, 1)
         );
         assert_eq!(q.baseline.overturns.fine_judged_junk, 0);
@@ -1038,7 +1079,10 @@ mod tests {
         let current = &q.current;
         assert_eq!((current.labelled_junk, current.labelled_fine), (3, 1));
         assert_eq!(current.overturns.junk_judged_fine, 1);
-        assert!(close(current.overturns.missed_junk_rate.unwrap(), 1.0 / 3.0));
+        assert!(close(
+            current.overturns.missed_junk_rate.unwrap(),
+            1.0 / 3.0
+        ));
         assert_eq!(current.overturns.overturn_rate, Some(0.25));
         assert_eq!(current.overturns.review_rate, Some(0.5));
         // Junk 0.3, 0.7, 1.0 against fine 0.5: two pairs of three won.
@@ -1079,12 +1123,26 @@ mod tests {
         let activity = &report.activity;
         let b = &activity.baseline;
         assert_eq!(
-            (b.feedback, b.junk, b.fine, b.corrections, b.revoked, b.inline),
+            (
+                b.feedback,
+                b.junk,
+                b.fine,
+                b.corrections,
+                b.revoked,
+                b.inline
+            ),
             (4, 2, 2, 0, 1, 0)
         );
         let c = &activity.current;
         assert_eq!(
-            (c.feedback, c.junk, c.fine, c.corrections, c.revoked, c.inline),
+            (
+                c.feedback,
+                c.junk,
+                c.fine,
+                c.corrections,
+                c.revoked,
+                c.inline
+            ),
             (7, 5, 2, 1, 0, 1)
         );
         let names: Vec<(&str, u64)> = c
@@ -1208,7 +1266,12 @@ mod tests {
         assert_eq!(report.overall.scores.current.over_time.len(), 24);
         let json = serde_json::to_value(&report).unwrap();
         assert_eq!(json["features"], serde_json::Value::Null);
-        assert!(json["help"]["psi_band"].as_str().unwrap().contains("no single source"));
+        assert!(
+            json["help"]["psi_band"]
+                .as_str()
+                .unwrap()
+                .contains("no single source")
+        );
         store.close().await;
     }
 

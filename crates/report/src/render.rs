@@ -98,8 +98,18 @@ fn write_scope(out: &mut String, report: &DriftReport, scope: &ScopeReport) -> s
     let row = |out: &mut String, label: &str, b: String, c: String| {
         writeln!(out, "{label:<34} {b:>14} {c:>14}")
     };
-    row(out, "decisions", b.decisions.to_string(), c.decisions.to_string())?;
-    row(out, "mean p_junk", num(b.mean_p_junk, 4), num(c.mean_p_junk, 4))?;
+    row(
+        out,
+        "decisions",
+        b.decisions.to_string(),
+        c.decisions.to_string(),
+    )?;
+    row(
+        out,
+        "mean p_junk",
+        num(b.mean_p_junk, 4),
+        num(c.mean_p_junk, 4),
+    )?;
     row(
         out,
         "junk share",
@@ -182,11 +192,15 @@ fn write_quality(out: &mut String, report: &DriftReport, scope: &ScopeReport) ->
     row(out, "fine judged junk", &|w| {
         w.overturns.fine_judged_junk.to_string()
     })?;
-    row(out, "false-junk rate", &|w| pct(w.overturns.false_junk_rate))?;
+    row(out, "false-junk rate", &|w| {
+        pct(w.overturns.false_junk_rate)
+    })?;
     row(out, "junk judged fine", &|w| {
         w.overturns.junk_judged_fine.to_string()
     })?;
-    row(out, "missed-junk rate", &|w| pct(w.overturns.missed_junk_rate))?;
+    row(out, "missed-junk rate", &|w| {
+        pct(w.overturns.missed_junk_rate)
+    })?;
     row(out, "overturn rate", &|w| pct(w.overturns.overturn_rate))?;
     row(out, "review labelled junk / fine", &|w| {
         format!(
@@ -309,7 +323,11 @@ fn write_channels(out: &mut String, channels: &[ScopeReport]) -> std::fmt::Resul
             scores.baseline.decisions, scores.current.decisions
         );
         let psi = match scores.psi_band {
-            Some(band) => format!("{} {}", num(scores.psi, 3), format!("{band:?}").to_lowercase()),
+            Some(band) => format!(
+                "{} {}",
+                num(scores.psi, 3),
+                format!("{band:?}").to_lowercase()
+            ),
             None => "-".to_owned(),
         };
         let q = &scope.quality;
@@ -361,7 +379,10 @@ fn write_alarms(out: &mut String, report: &DriftReport) -> std::fmt::Result {
 
 fn write_activity(out: &mut String, report: &DriftReport) -> std::fmt::Result {
     let activity = &report.activity;
-    writeln!(out, "== learning activity (feedback by the time it was given) ==")?;
+    writeln!(
+        out,
+        "== learning activity (feedback by the time it was given) =="
+    )?;
     writeln!(out, "{:<34} {:>14} {:>14}", "", "baseline", "current")?;
     let (b, c) = (&activity.baseline, &activity.current);
     let row = |out: &mut String, label: &str, f: &dyn Fn(&ActivityWindow) -> u64| {

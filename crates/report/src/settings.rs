@@ -180,9 +180,7 @@ pub(crate) fn validate(request: &ReportRequest) -> Result<(), ReportError> {
     for (name, span) in [("baseline", request.baseline), ("current", request.current)] {
         let ms = span_ms(span);
         if !(1..=MAX_SPAN_MS).contains(&ms) {
-            problems.push(format!(
-                "{name} = {ms} ms: must be from 1 ms to 3650 days"
-            ));
+            problems.push(format!("{name} = {ms} ms: must be from 1 ms to 3650 days"));
         }
     }
     if request.channel.as_deref() == Some("") {
@@ -334,7 +332,10 @@ mod tests {
         samples: impl Iterator<Item = f64>,
     ) -> Option<usize> {
         let mut ph = chaffgate_metrics::PageHinkley::new(settings.params(direction)).unwrap();
-        samples.enumerate().find(|(_, x)| ph.update(*x)).map(|(i, _)| i)
+        samples
+            .enumerate()
+            .find(|(_, x)| ph.update(*x))
+            .map(|(i, _)| i)
     }
 
     #[test]
@@ -348,7 +349,11 @@ mod tests {
         for seed in SEEDS {
             let mut rng = XorShift(seed);
             let steady = (0..20_000).map(|_| f64::from(u8::from(rng.unit() < 0.05)));
-            assert_eq!(first_alarm(settings, Direction::Increase, steady), None, "seed {seed}");
+            assert_eq!(
+                first_alarm(settings, Direction::Increase, steady),
+                None,
+                "seed {seed}"
+            );
             let mut rng = XorShift(seed);
             let stepped = (0..4_000).map(|i| {
                 let rate = if i < 2_000 { 0.05 } else { 0.30 };

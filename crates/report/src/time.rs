@@ -33,7 +33,9 @@ pub const MAX_TIME_MS: i64 = 253_402_300_799_999;
 #[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
 pub enum InputError {
     /// A length without its unit (`90`), or with one not known (`90x`).
-    #[error("{text:?} is not a length: write a whole number and a unit d, h, m or s (e.g. 7d, 24h, 90m, 3600s)")]
+    #[error(
+        "{text:?} is not a length: write a whole number and a unit d, h, m or s (e.g. 7d, 24h, 90m, 3600s)"
+    )]
     BadSpan {
         /// The text given.
         text: String,
@@ -55,7 +57,9 @@ pub enum InputError {
 
     /// Neither RFC 3339 nor a count of milliseconds, or a date that does
     /// not exist (February 30th), or a time outside years 1970 to 9999.
-    #[error("{text:?} is not a time: write RFC 3339 (e.g. 2026-12-02T10:00:00Z) or milliseconds since 1970-01-01T00:00:00Z; {why}")]
+    #[error(
+        "{text:?} is not a time: write RFC 3339 (e.g. 2026-12-02T10:00:00Z) or milliseconds since 1970-01-01T00:00:00Z; {why}"
+    )]
     BadTime {
         /// The text given.
         text: String,
@@ -109,7 +113,12 @@ pub fn parse_span(text: &str) -> Result<Duration, InputError> {
 /// `90m`, `3601s`; below a second, milliseconds (`250ms`).
 pub fn format_span(span: Duration) -> String {
     let ms = span_ms(span);
-    for (unit_ms, unit) in [(DAY_MS, "d"), (HOUR_MS, "h"), (MINUTE_MS, "m"), (SECOND_MS, "s")] {
+    for (unit_ms, unit) in [
+        (DAY_MS, "d"),
+        (HOUR_MS, "h"),
+        (MINUTE_MS, "m"),
+        (SECOND_MS, "s"),
+    ] {
         if ms >= unit_ms && ms % unit_ms == 0 {
             let count = ms / unit_ms;
             return format!("{count}{unit}");
@@ -373,10 +382,7 @@ mod tests {
             parse_time("2026-12-02T08:15:30.250999Z"),
             Ok(1_796_199_330_250)
         );
-        assert_eq!(
-            parse_time("2026-12-02 08:15:30.25z"),
-            Ok(1_796_199_330_250)
-        );
+        assert_eq!(parse_time("2026-12-02 08:15:30.25z"), Ok(1_796_199_330_250));
         assert_eq!(parse_time("2000-02-29T00:00:00Z"), Ok(951_782_400_000));
         assert_eq!(parse_time("1796199330250"), Ok(1_796_199_330_250));
         assert_eq!(parse_time("0"), Ok(0));

@@ -71,8 +71,9 @@ fn request_from(
     now: impl FnOnce() -> i64,
 ) -> Result<ReportRequest, ApiError> {
     let span = |name: &str, text: &Option<String>, default: Duration| match text {
-        Some(text) => parse_span(text)
-            .map_err(|err| ApiError::InvalidParameter(format!("{name}: {err}"))),
+        Some(text) => {
+            parse_span(text).map_err(|err| ApiError::InvalidParameter(format!("{name}: {err}")))
+        }
         None => Ok(default),
     };
     let baseline = span("baseline", &query.baseline, defaults.baseline)?;
@@ -112,8 +113,8 @@ mod tests {
 
     #[test]
     fn absent_parameters_take_the_defaults_and_now() {
-        let request = request_from(&query(None, None, None), &ReportDefaults::default(), || 42)
-            .unwrap();
+        let request =
+            request_from(&query(None, None, None), &ReportDefaults::default(), || 42).unwrap();
         assert_eq!(request.at_ms, 42);
         assert_eq!(request.baseline, Duration::from_secs(7 * 86_400));
         assert_eq!(request.current, Duration::from_secs(86_400));

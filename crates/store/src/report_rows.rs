@@ -451,7 +451,10 @@ mod tests {
                 .any(|step| step.contains("COVERING INDEX decisions_by_hour_for_reports")),
             "{plan:?}"
         );
-        assert!(!plan.iter().any(|step| step.contains("TEMP B-TREE")), "{plan:?}");
+        assert!(
+            !plan.iter().any(|step| step.contains("TEMP B-TREE")),
+            "{plan:?}"
+        );
         store.close().await;
     }
 
@@ -511,7 +514,11 @@ mod tests {
                 .iter()
                 .any(|t| t.is_revoked && t.moderator == "ana" && t.label == Label::Junk)
         );
-        assert!(current.iter().any(|t| !t.is_on_decision && t.moderator == "ben"));
+        assert!(
+            current
+                .iter()
+                .any(|t| !t.is_on_decision && t.moderator == "ben")
+        );
         assert!(
             current
                 .iter()
@@ -552,7 +559,13 @@ mod tests {
         let events = store.model_events_between(H, H + 5).await.unwrap();
         assert_eq!(events.len(), 1);
         assert_eq!(events[0].kind, "rollback");
-        assert!(store.model_events_between(H, H + 4).await.unwrap().is_empty());
+        assert!(
+            store
+                .model_events_between(H, H + 4)
+                .await
+                .unwrap()
+                .is_empty()
+        );
         store.close().await;
     }
 }
