@@ -270,7 +270,7 @@ fn new_junk_the_model_misses_shows_as_drift_with_an_alarm() {
     assert!(text.status.success(), "{}", stderr(&text));
     let text = String::from_utf8_lossy(&text.stdout);
     assert!(
-        text.contains("(large)") && text.contains("FeedbackErrors"),
+        text.contains("(large)") && text.contains("feedback_errors"),
         "{text}"
     );
     assert!(server.stop(), "clean exit");

@@ -10,7 +10,7 @@ pub enum ReportError {
     /// length, a time outside 1970 to 9999, settings the metrics reject.
     /// Every problem found is listed, each as `key = value: what is
     /// allowed`.
-    #[error("invalid report request: {}", .problems.join("; "))]
+    #[error("invalid report request: {problems}", problems = .problems.join("; "))]
     InvalidRequest {
         /// One line per problem.
         problems: Vec<String>,

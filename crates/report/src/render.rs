@@ -7,6 +7,8 @@
 
 use std::fmt::Write;
 
+use chaffgate_metrics::PsiBand;
+
 use crate::report::{
     ActivityWindow, DriftReport, OperatingPoint, QualityWindow, ScopeReport, ScoreWindow,
     VerdictMix, Window,
@@ -37,6 +39,20 @@ fn pct(value: Option<f64>) -> String {
         }
         None => "-".to_owned(),
     }
+}
+
+fn band_name(band: PsiBand) -> &'static str {
+    match band {
+        PsiBand::Stable => "stable",
+        PsiBand::Moderate => "moderate",
+        PsiBand::Large => "large",
+    }
+}
+
+/// A header row: an empty label column, then the two windows.
+fn header(out: &mut String) -> std::fmt::Result {
+    let (label, baseline, current) = ("", "baseline", "current");
+    writeln!(out, "{label:<34} {baseline:>14} {current:>14}")
 }
 
 fn scope_name(scope: &ScopeReport) -> String {
@@ -94,7 +110,7 @@ fn write_scope(out: &mut String, report: &DriftReport, scope: &ScopeReport) -> s
     let scores = &scope.scores;
     let (b, c) = (&scores.baseline, &scores.current);
     writeln!(out, "== scores, {name} ==")?;
-    writeln!(out, "{:<34} {:>14} {:>14}", "", "baseline", "current")?;
+    header(out)?;
     let row = |out: &mut String, label: &str, b: String, c: String| {
         writeln!(out, "{label:<34} {b:>14} {c:>14}")
     };
@@ -135,14 +151,17 @@ fn write_scope(out: &mut String, report: &DriftReport, scope: &ScopeReport) -> s
     row(out, "judged by model seq", seqs(b), seqs(c))?;
     let psi = num(scores.psi, 4);
     let band = match scores.psi_band {
-        Some(band) => format!("{band:?}").to_lowercase(),
+        Some(band) => band_name(band).to_owned(),
         None => "needs decisions in both windows".to_owned(),
     };
     writeln!(out, "population stability index {psi} ({band})")?;
     writeln!(
         out,
-        "{:<14} {:>10} {:>10} {:>10}",
-        "p_junk bin", "baseline", "current", "psi part"
+        "{bin:<14} {baseline:>10} {current:>10} {part:>10}",
+        bin = "p_junk bin",
+        baseline = "baseline",
+        current = "current",
+        part = "psi part"
     )?;
     let edges = &report.settings.psi_bin_edges;
     for (index, pair) in edges.windows(2).enumerate() {
@@ -180,14 +199,15 @@ fn write_quality(out: &mut String, report: &DriftReport, scope: &ScopeReport) ->
     let name = scope_name(scope);
     let (b, c) = (&scope.quality.baseline, &scope.quality.current);
     writeln!(out, "== quality from feedback, {name} ==")?;
-    writeln!(out, "{:<34} {:>14} {:>14}", "", "baseline", "current")?;
+    header(out)?;
     let row = |out: &mut String, label: &str, f: &dyn Fn(&QualityWindow) -> String| {
         let (b, c) = (f(b), f(c));
         writeln!(out, "{label:<34} {b:>14} {c:>14}")
     };
     row(out, "labelled decisions", &|w| w.labelled.to_string())?;
     row(out, "labelled junk / fine", &|w| {
-        format!("{} / {}", w.labelled_junk, w.labelled_fine)
+        let (junk, fine) = (w.labelled_junk, w.labelled_fine);
+        format!("{junk} / {fine}")
     })?;
     row(out, "fine judged junk", &|w| {
         w.overturns.fine_judged_junk.to_string()
@@ -203,10 +223,11 @@ fn write_quality(out: &mut String, report: &DriftReport, scope: &ScopeReport) ->
     })?;
     row(out, "overturn rate", &|w| pct(w.overturns.overturn_rate))?;
     row(out, "review labelled junk / fine", &|w| {
-        format!(
-            "{} / {}",
-            w.overturns.review_labelled_junk, w.overturns.review_labelled_fine
-        )
+        let (junk, fine) = (
+            w.overturns.review_labelled_junk,
+            w.overturns.review_labelled_fine,
+        );
+        format!("{junk} / {fine}")
     })?;
     row(out, "ROC AUC", &|w| num(w.roc_auc, 4))?;
     row(out, "log loss", &|w| num(w.log_loss, 4))?;
@@ -217,8 +238,11 @@ fn write_quality(out: &mut String, report: &DriftReport, scope: &ScopeReport) ->
     if let Some(table) = &c.calibration {
         writeln!(
             out,
-            "reliability, current: {:<11} {:>8} {:>12} {:>10}",
-            "p_junk bin", "labelled", "mean p_junk", "junk rate"
+            "reliability, current: {bin:<11} {labelled:>8} {mean:>12} {rate:>10}",
+            bin = "p_junk bin",
+            labelled = "labelled",
+            mean = "mean p_junk",
+            rate = "junk rate"
         )?;
         for bin in &table.bins {
             let label = format!("{:.2}-{:.2}", bin.lower, bin.upper);
@@ -227,8 +251,8 @@ fn write_quality(out: &mut String, report: &DriftReport, scope: &ScopeReport) ->
             let rate = pct(bin.junk_rate);
             writeln!(
                 out,
-                "{:<21} {label:<11} {count:>8} {mean:>12} {rate:>10}",
-                ""
+                "{blank:<21} {label:<11} {count:>8} {mean:>12} {rate:>10}",
+                blank = ""
             )?;
         }
     }
@@ -265,8 +289,11 @@ fn write_advice(out: &mut String, scope: &ScopeReport) -> std::fmt::Result {
     }
     writeln!(
         out,
-        "{:<12} {:>10} {:>18} {:>18}",
-        "", "threshold", "false junk", "junk caught"
+        "{blank:<12} {threshold:>10} {fine:>18} {junk:>18}",
+        blank = "",
+        threshold = "threshold",
+        fine = "false junk",
+        junk = "junk caught"
     )?;
     let line = |out: &mut String, label: &str, point: &Option<OperatingPoint>| {
         let Some(point) = point else {
@@ -276,16 +303,10 @@ fn write_advice(out: &mut String, scope: &ScopeReport) -> std::fmt::Result {
             Some(t) => format!("{t:.4}"),
             None => "none".to_owned(),
         };
-        let fine = format!(
-            "{} ({})",
-            pct(Some(point.false_junk_rate)),
-            point.fine_judged_junk
-        );
-        let junk = format!(
-            "{} ({})",
-            pct(Some(point.junk_caught_share)),
-            point.junk_caught
-        );
+        let (fine_rate, fine_count) = (pct(Some(point.false_junk_rate)), point.fine_judged_junk);
+        let fine = format!("{fine_rate} ({fine_count})");
+        let (junk_rate, junk_count) = (pct(Some(point.junk_caught_share)), point.junk_caught);
+        let junk = format!("{junk_rate} ({junk_count})");
         writeln!(out, "{label:<12} {threshold:>10} {fine:>18} {junk:>18}")
     };
     line(out, "configured", &advice.configured)?;
@@ -312,35 +333,34 @@ fn write_channels(out: &mut String, channels: &[ScopeReport]) -> std::fmt::Resul
     writeln!(out, "== per channel (baseline -> current) ==")?;
     writeln!(
         out,
-        "{:<16} {:>19} {:>16} {:>17} {:>17} {:>8}",
-        "channel", "decisions", "psi", "overturn rate", "missed junk", "advice"
+        "{channel:<16} {decisions:>19} {psi:>16} {overturn:>17} {missed:>17} {advice:>8}",
+        channel = "channel",
+        decisions = "decisions",
+        psi = "psi",
+        overturn = "overturn rate",
+        missed = "missed junk",
+        advice = "advice"
     )?;
     for scope in channels {
         let name = scope.channel.as_deref().unwrap_or("-");
         let scores = &scope.scores;
-        let decisions = format!(
-            "{} -> {}",
-            scores.baseline.decisions, scores.current.decisions
-        );
+        let (before, after) = (scores.baseline.decisions, scores.current.decisions);
+        let decisions = format!("{before} -> {after}");
         let psi = match scores.psi_band {
-            Some(band) => format!(
-                "{} {}",
-                num(scores.psi, 3),
-                format!("{band:?}").to_lowercase()
-            ),
+            Some(band) => {
+                let value = num(scores.psi, 3);
+                let band = band_name(band);
+                format!("{value} {band}")
+            }
             None => "-".to_owned(),
         };
         let q = &scope.quality;
-        let overturn = format!(
-            "{} -> {}",
-            pct(q.baseline.overturns.overturn_rate),
-            pct(q.current.overturns.overturn_rate)
-        );
-        let missed = format!(
-            "{} -> {}",
-            pct(q.baseline.overturns.missed_junk_rate),
-            pct(q.current.overturns.missed_junk_rate)
-        );
+        let change = |f: &dyn Fn(&QualityWindow) -> Option<f64>| {
+            let (before, after) = (pct(f(&q.baseline)), pct(f(&q.current)));
+            format!("{before} -> {after}")
+        };
+        let overturn = change(&|w| w.overturns.overturn_rate);
+        let missed = change(&|w| w.overturns.missed_junk_rate);
         let advice = match (&scope.threshold_advice.note, scope.threshold_advice.differs) {
             (Some(_), _) => "-",
             (None, true) => "differs",
@@ -361,10 +381,10 @@ fn write_alarms(out: &mut String, report: &DriftReport) -> std::fmt::Result {
     }
     for alarm in &report.alarms {
         let at = &alarm.at;
-        let detector = format!("{:?}", alarm.detector);
+        let detector = alarm.detector.as_str();
         let channel = alarm.channel.as_deref().unwrap_or("all");
-        let window = format!("{:?}", alarm.window).to_lowercase();
-        let shift = format!("{:?}", alarm.shift).to_lowercase();
+        let window = alarm.window.as_str();
+        let shift = alarm.shift.as_str();
         let statistic = alarm.statistic;
         let samples = alarm.samples;
         let mean = alarm.mean;
@@ -383,7 +403,7 @@ fn write_activity(out: &mut String, report: &DriftReport) -> std::fmt::Result {
         out,
         "== learning activity (feedback by the time it was given) =="
     )?;
-    writeln!(out, "{:<34} {:>14} {:>14}", "", "baseline", "current")?;
+    header(out)?;
     let (b, c) = (&activity.baseline, &activity.current);
     let row = |out: &mut String, label: &str, f: &dyn Fn(&ActivityWindow) -> u64| {
         let (b, c) = (f(b), f(c));

@@ -58,6 +58,16 @@ pub enum WindowName {
     Current,
 }
 
+impl WindowName {
+    /// The name as in the JSON form.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            WindowName::Baseline => "baseline",
+            WindowName::Current => "current",
+        }
+    }
+}
+
 /// The two windows of the report.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Windows {
@@ -325,6 +335,16 @@ pub enum Detector {
     PJunk,
 }
 
+impl Detector {
+    /// The name as in the JSON form.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Detector::FeedbackErrors => "feedback_errors",
+            Detector::PJunk => "p_junk",
+        }
+    }
+}
+
 /// Which way the watched mean moved.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
@@ -333,6 +353,16 @@ pub enum Shift {
     Rise,
     /// It fell: lower scores.
     Fall,
+}
+
+impl Shift {
+    /// The name as in the JSON form.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Shift::Rise => "rise",
+            Shift::Fall => "fall",
+        }
+    }
 }
 
 /// A change detector's alarm.
