@@ -398,6 +398,7 @@ fn fill_a_database_for_the_benchmark() {
         let started = std::time::Instant::now();
         let mut batch = Vec::with_capacity(20_000);
         let mut feedback = Vec::with_capacity(110_000);
+        let mut labelled: i64 = 0;
         for n in 0..DECISIONS {
             let at_ms = END_MS - SPAN_MS + n * SPAN_MS / DECISIONS;
             let is_last_day = at_ms >= END_MS - 24 * 3_600_000;
@@ -436,9 +437,12 @@ fn fill_a_database_for_the_benchmark() {
                 Verdict::Fine
             };
             let id = DecisionId::new(format!("{n:026}"));
-            if n % 10 == 3 {
+            // One decision in ten, spread over the channels (the last digit
+            // picks the channel).
+            if n % 10 == n / 10 % 10 {
+                labelled += 1;
                 let label = if is_junk { Label::Junk } else { Label::Fine };
-                let moderator = ["ana", "ben", "cy", "dee", "eli"][(n / 10 % 5) as usize];
+                let moderator = ["ana", "ben", "cy", "dee", "eli"][(labelled % 5) as usize];
                 let mut row = FeedbackImport {
                     created_at_ms: at_ms + 60_000,
                     decision_id: Some(id.clone()),
@@ -448,7 +452,7 @@ fn fill_a_database_for_the_benchmark() {
                     kind: FeedbackKind::Label,
                     revoked_at_ms: None,
                 };
-                if n % 1000 == 3 {
+                if labelled % 100 == 0 {
                     // A wrong first label, corrected a minute later.
                     feedback.push(FeedbackImport {
                         label: label.opposite(),
@@ -456,7 +460,7 @@ fn fill_a_database_for_the_benchmark() {
                     });
                     row.kind = FeedbackKind::Correction;
                     row.created_at_ms += 60_000;
-                } else if n % 2000 == 13 {
+                } else if labelled % 200 == 13 {
                     row.revoked_at_ms = Some(at_ms + 3_600_000);
                 }
                 feedback.push(row);
