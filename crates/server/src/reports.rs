@@ -3,7 +3,8 @@
 //! Query parameters, all optional: `baseline` and `current` (window lengths
 //! such as `7d`, `24h`, `90m`, `3600s`; defaults from `[reports]`),
 //! `channel`, and `at` (end of the current window, RFC 3339 or ms since
-//! 1970; default now). Needs role `operate`. A malformed or out-of-range
+//! 1970; default now; in a query string the `+` of an offset must be sent
+//! as `%2B`, or it reads as a space). Needs role `operate`. A malformed or out-of-range
 //! parameter, or an unknown one, answers 400 `invalid_parameter`; only a
 //! database failure answers 500.
 
