@@ -6,6 +6,7 @@ mod browser;
 mod cli;
 mod demo;
 mod demo_corpus;
+mod drift;
 mod logreg;
 mod openapi;
 mod server;

@@ -11,9 +11,13 @@ use std::collections::BTreeMap;
 use std::fmt;
 use std::path::{Path, PathBuf};
 
+use std::time::Duration;
+
 use anyhow::{Context, bail};
 use chaffgate_metrics::{Direction, PageHinkleyParams};
 use chaffgate_model::UpdateRule;
+use chaffgate_report::time::{format_span, parse_span};
+use chaffgate_report::{DetectorSettings, MAX_PSI_BINS, ReportSettings, VerdictThresholds};
 use chaffgate_server::Thresholds;
 use chaffgate_text::FeatureSettings;
 use serde::{Deserialize, Serialize};
@@ -33,6 +37,7 @@ pub struct Config {
     pub tally: TallyConfig,
     pub alarms: AlarmsConfig,
     pub channels: BTreeMap<String, ChannelConfig>,
+    pub reports: ReportsConfig,
 }
 
 impl Default for Config {
@@ -48,6 +53,7 @@ impl Default for Config {
             tally: TallyConfig::default(),
             alarms: AlarmsConfig::default(),
             channels,
+            reports: ReportsConfig::default(),
         }
     }
 }
@@ -386,6 +392,103 @@ impl ModelConfig {
     }
 }
 
+/// How drift reports (`chaffgate drift`, `GET /v1/reports/drift`) are
+/// computed; see the `[reports]` section of `config/chaffgate.toml`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct ReportsConfig {
+    /// Baseline window length unless a report asks for another, e.g. `7d`.
+    pub baseline: String,
+    /// Current window length unless a report asks for another, e.g. `1d`.
+    pub current: String,
+    /// Equal-width `p_junk` bins of the stability index.
+    pub psi_bins: u32,
+    /// False-junk rate the threshold advice keeps to.
+    pub false_junk_target: f64,
+    /// Page-Hinkley δ over overturned verdicts.
+    pub error_delta: f64,
+    /// Page-Hinkley λ over overturned verdicts.
+    pub error_lambda: f64,
+    /// Labelled decisions before that detector may fire.
+    pub error_min_samples: u64,
+    /// Page-Hinkley δ over mean `p_junk`.
+    pub p_junk_delta: f64,
+    /// Page-Hinkley λ over mean `p_junk`.
+    pub p_junk_lambda: f64,
+    /// Samples before that detector may fire.
+    pub p_junk_min_samples: u64,
+    /// Decisions one sample of that detector holds at least.
+    pub p_junk_block: u32,
+}
+
+impl Default for ReportsConfig {
+    /// The report engine's own defaults (measured in its tests).
+    fn default() -> Self {
+        let settings = ReportSettings::default();
+        ReportsConfig {
+            baseline: format_span(chaffgate_report::DEFAULT_BASELINE),
+            current: format_span(chaffgate_report::DEFAULT_CURRENT),
+            psi_bins: u32::try_from(settings.psi_bins).unwrap_or(10),
+            false_junk_target: settings.false_junk_target,
+            error_delta: settings.error_detector.delta,
+            error_lambda: settings.error_detector.lambda,
+            error_min_samples: settings.error_detector.min_samples,
+            p_junk_delta: settings.p_junk_detector.delta,
+            p_junk_lambda: settings.p_junk_detector.lambda,
+            p_junk_min_samples: settings.p_junk_detector.min_samples,
+            p_junk_block: settings.p_junk_block,
+        }
+    }
+}
+
+impl ReportsConfig {
+    /// Every problem with these keys, as `reports.key = value: allowed`.
+    fn problems(&self) -> Vec<String> {
+        let mut problems = Vec::new();
+        for (key, value) in [("baseline", &self.baseline), ("current", &self.current)] {
+            if let Err(err) = parse_span(value) {
+                problems.push(format!("reports.{key} = {value:?}: {err}"));
+            }
+        }
+        let bins = self.psi_bins;
+        if !(1..=MAX_PSI_BINS).contains(&(bins as usize)) {
+            problems.push(format!(
+                "reports.psi_bins = {bins}: must be between 1 and {MAX_PSI_BINS}"
+            ));
+        }
+        let target = self.false_junk_target;
+        if !(0.0..1.0).contains(&target) {
+            problems.push(format!(
+                "reports.false_junk_target = {target}: must be at least 0 and below 1"
+            ));
+        }
+        for (key, delta) in [
+            ("error_delta", self.error_delta),
+            ("p_junk_delta", self.p_junk_delta),
+        ] {
+            if !(delta >= 0.0 && delta.is_finite()) {
+                problems.push(format!(
+                    "reports.{key} = {delta}: must be a finite number at least 0"
+                ));
+            }
+        }
+        for (key, lambda) in [
+            ("error_lambda", self.error_lambda),
+            ("p_junk_lambda", self.p_junk_lambda),
+        ] {
+            if !(lambda > 0.0 && lambda.is_finite()) {
+                problems.push(format!(
+                    "reports.{key} = {lambda}: must be a finite number above 0"
+                ));
+            }
+        }
+        if self.p_junk_block == 0 {
+            problems.push("reports.p_junk_block = 0: must be at least 1".to_owned());
+        }
+        problems
+    }
+}
+
 /// The `p_junk` thresholds that turn a score into a verdict for one channel.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 #[serde(deny_unknown_fields, default)]
@@ -571,6 +674,7 @@ impl Config {
                 ));
             }
         }
+        problems.extend(self.reports.problems());
         if problems.is_empty() {
             return Ok(());
         }
@@ -648,6 +752,46 @@ impl Config {
                 ));
             }
         }
+    }
+
+    /// The drift report settings: the `[reports]` keys and every channel's
+    /// thresholds. Call on a validated configuration.
+    pub fn report_settings(&self) -> ReportSettings {
+        let reports = &self.reports;
+        let thresholds = |channel: &ChannelConfig| VerdictThresholds {
+            junk: channel.junk_threshold,
+            review: channel.review_threshold,
+        };
+        ReportSettings {
+            psi_bins: reports.psi_bins as usize,
+            false_junk_target: reports.false_junk_target,
+            error_detector: DetectorSettings {
+                delta: reports.error_delta,
+                lambda: reports.error_lambda,
+                min_samples: reports.error_min_samples,
+            },
+            p_junk_detector: DetectorSettings {
+                delta: reports.p_junk_delta,
+                lambda: reports.p_junk_lambda,
+                min_samples: reports.p_junk_min_samples,
+            },
+            p_junk_block: reports.p_junk_block,
+            default_thresholds: thresholds(&self.channel(None)),
+            channel_thresholds: self
+                .channels
+                .iter()
+                .filter(|(name, _)| name.as_str() != DEFAULT_CHANNEL)
+                .map(|(name, channel)| (name.clone(), thresholds(channel)))
+                .collect(),
+        }
+    }
+
+    /// The default report windows `(baseline, current)` of `[reports]`.
+    /// Call on a validated configuration.
+    pub fn report_windows(&self) -> anyhow::Result<(Duration, Duration)> {
+        let baseline = parse_span(&self.reports.baseline).context("reports.baseline")?;
+        let current = parse_span(&self.reports.current).context("reports.current")?;
+        Ok((baseline, current))
     }
 
     /// The thresholds for `channel`, falling back to the default channel.
@@ -826,6 +970,42 @@ mod tests {
         assert!(text.contains("tally.bucket_secs = 7000"), "{text}");
         assert!(text.contains("alarms.feedback_error.lambda = 0"), "{text}");
         assert!(text.contains("alarms.p_junk.delta = NaN"), "{text}");
+    }
+
+    #[test]
+    fn report_keys_are_checked_and_passed_on() {
+        let err = load_str(
+            "[reports]\nbaseline = \"7 days\"\npsi_bins = 0\nerror_lambda = 0.0\n",
+            &[("CHAFFGATE_REPORTS_P_JUNK_BLOCK", "0")],
+        )
+        .unwrap_err();
+        let text = format!("{err:#}");
+        for key in [
+            "reports.baseline = \"7 days\"",
+            "reports.psi_bins = 0",
+            "reports.error_lambda = 0",
+            "reports.p_junk_block = 0",
+        ] {
+            assert!(text.contains(key), "{key} missing in {text}");
+        }
+
+        let config = load_str(
+            "[reports]\ncurrent = \"90m\"\n[channels.tickets]\njunk_threshold = 0.99\nreview_threshold = 0.5\n",
+            &[("CHAFFGATE_REPORTS_FALSE_JUNK_TARGET", "0.01")],
+        )
+        .unwrap();
+        let settings = config.report_settings();
+        assert_eq!(settings.false_junk_target, 0.01);
+        assert_eq!(settings.thresholds(Some("tickets")).junk, 0.99);
+        assert_eq!(settings.thresholds(Some("comments")).junk, 0.9);
+        let (baseline, current) = config.report_windows().unwrap();
+        assert_eq!(baseline, Duration::from_secs(7 * 24 * 3600));
+        assert_eq!(current, Duration::from_secs(90 * 60));
+        // The defaults are the report engine's own.
+        assert_eq!(
+            Config::default().report_settings(),
+            ReportSettings::default()
+        );
     }
 
     #[test]

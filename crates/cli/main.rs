@@ -7,6 +7,7 @@
 mod config;
 mod corpus;
 mod demo;
+mod drift;
 mod eval;
 mod pipeline;
 mod rebuild;
@@ -62,6 +63,8 @@ enum Command {
     Rebuild(RebuildArgs),
     /// Run the daemon on an invented stream: learn, replay, report, and serve the pages.
     Demo(demo::DemoArgs),
+    /// Report what changed between a baseline window and the current one.
+    Drift(DriftArgs),
     /// Manage the daemon's access tokens.
     #[command(subcommand)]
     Token(TokenCommand),
@@ -102,6 +105,30 @@ struct RebuildArgs {
     /// Where to write the rebuilt model.
     #[arg(long, value_name = "MODEL")]
     out: PathBuf,
+}
+
+#[derive(Args)]
+struct DriftArgs {
+    /// The database (default: chaffgate.db in server.data_dir).
+    #[arg(long, value_name = "PATH")]
+    db: Option<PathBuf>,
+    /// Length of the baseline window, just before the current one
+    /// (default: reports.baseline, 7d). E.g. 7d, 24h, 90m, 3600s.
+    #[arg(long, value_name = "LENGTH")]
+    baseline: Option<String>,
+    /// Length of the current window, ending at --at (default:
+    /// reports.current, 1d).
+    #[arg(long, value_name = "LENGTH")]
+    current: Option<String>,
+    /// Only this channel's decisions.
+    #[arg(long)]
+    channel: Option<String>,
+    /// End of the current window: RFC 3339 or ms since 1970 (default: now).
+    #[arg(long, value_name = "TIME")]
+    at: Option<String>,
+    /// Print the report as JSON.
+    #[arg(long)]
+    json: bool,
 }
 
 #[derive(Args)]
@@ -230,6 +257,17 @@ fn run(cli: Cli) -> anyhow::Result<()> {
                 TokenCommand::Revoke { name } => token::revoke(&config, &name).await,
             }
         }),
+        Command::Drift(args) => runtime()?.block_on(drift::run(
+            &config,
+            drift::DriftOptions {
+                db: args.db,
+                baseline: args.baseline,
+                current: args.current,
+                channel: args.channel,
+                at: args.at,
+                json: args.json,
+            },
+        )),
         Command::Rebuild(args) => runtime()?.block_on(rebuild::run(
             &config,
             rebuild::RebuildOptions { out: args.out },

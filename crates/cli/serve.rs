@@ -17,6 +17,7 @@ use std::time::Duration;
 use anyhow::{Context, bail};
 use chaffgate_model::Model;
 use chaffgate_server::model_file::{LoadedModel, load_model_file, save_model_file};
+use chaffgate_server::reports::ReportDefaults;
 use chaffgate_server::{
     AckMode, AlarmSettings, AuditSettings, Channels, Judge, LearnerSettings, ServerSettings,
     TallySettings, Thresholds, TokenBook, start,
@@ -43,6 +44,7 @@ pub fn server_settings(config: &Config) -> anyhow::Result<ServerSettings> {
         .listen
         .parse()
         .with_context(|| format!("server.listen = {:?}", config.server.listen))?;
+    let (baseline, current) = config.report_windows()?;
     let thresholds = |name: &str| config.channel(Some(name)).thresholds();
     let by_name: BTreeMap<String, Thresholds> = config
         .channels
@@ -86,6 +88,11 @@ pub fn server_settings(config: &Config) -> anyhow::Result<ServerSettings> {
             Duration::from_secs(alarms.hold_secs),
         )
         .context("alarms")?,
+        reports: ReportDefaults {
+            baseline,
+            current,
+            settings: config.report_settings(),
+        },
     })
 }
 

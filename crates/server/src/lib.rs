@@ -17,6 +17,7 @@ pub mod metrics;
 pub mod model_file;
 pub mod openapi;
 pub mod pages;
+pub mod reports;
 pub mod routes;
 pub mod settings;
 pub mod state;
@@ -181,6 +182,7 @@ fn route_table() -> Vec<RouteEntry> {
         entry("/v1/feedback", Post, routes::feedback),
         entry("/v1/model", Get, routes::model),
         entry("/v1/model/rollback", Post, routes::rollback),
+        entry("/v1/reports/drift", Get, reports::drift),
         entry(openapi::PATH, Get, openapi::document),
         entry("/healthz", Get, routes::healthz),
         entry("/readyz", Get, routes::readyz),

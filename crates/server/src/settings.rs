@@ -31,6 +31,8 @@ pub struct ServerSettings {
     pub tally: TallySettings,
     /// Live drift alarms.
     pub alarms: AlarmSettings,
+    /// What drift reports use unless a request says otherwise.
+    pub reports: crate::reports::ReportDefaults,
 }
 
 /// When the answer to a score request is sent.
@@ -138,6 +140,7 @@ impl ServerSettings {
             ),
             tally: TallySettings::default(),
             alarms: AlarmSettings::default(),
+            reports: crate::reports::ReportDefaults::default(),
         }
     }
 }

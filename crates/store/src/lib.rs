@@ -44,6 +44,7 @@ mod decisions;
 mod error;
 mod feedback;
 mod queue;
+mod report_rows;
 mod tallies;
 mod tokens;
 mod types;
@@ -64,6 +65,9 @@ pub use decisions::{
 pub use error::StoreError;
 pub use feedback::{FeedbackOutcome, FeedbackRow, FeedbackTarget, NewFeedback};
 pub use queue::{QueueFilter, QueueOrder, QueuePage, QueueScope};
+pub use report_rows::{
+    FeedbackImport, FeedbackTally, HOUR_MS, HourTally, LabelledDecision, MAX_INNER_EDGES,
+};
 pub use tallies::{
     ContributionRank, FEATURE_DRIFT_MIN_MESSAGES, FeatureCount, FeatureDrift, FeatureTally,
     PartFeature, ShareChange, TallyPart, feature_drift, feature_drift_with,
@@ -212,7 +216,7 @@ mod tests {
             rows
         };
         let before = migrations(store.clone()).await;
-        assert_eq!(before, [(1, true), (2, true)]);
+        assert_eq!(before, [(1, true), (2, true), (3, true)]);
         store.close().await;
 
         let store = Store::open(&dir.path().join("chaffgate.db")).await.unwrap();
