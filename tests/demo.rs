@@ -28,6 +28,20 @@ fn demo_replays_the_invented_stream_and_stops() {
     // The bar the demo must clear; the stream is ours, see the module docs.
     assert!(auc > 0.95, "{out}");
     assert!(dir.path().join("demo-data/chaffgate.db").exists());
+    // The drift report finds the campaign that starts in week 5: at least
+    // one alarm fires from then on.
+    let alarm_weeks: Vec<u32> = out
+        .lines()
+        .filter(|line| line.trim_start().starts_with("alarm:"))
+        .filter_map(|line| {
+            line.rsplit_once("(week ")?
+                .1
+                .strip_suffix(')')?
+                .parse()
+                .ok()
+        })
+        .collect();
+    assert!(alarm_weeks.iter().any(|&week| week >= 5), "{out}");
 
     // A run never deletes a folder it did not make.
     std::fs::create_dir(dir.path().join("mine")).unwrap();
