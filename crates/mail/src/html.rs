@@ -520,6 +520,31 @@ mod tests {
     }
 
     #[test]
+    fn comments_and_inline_tags_inside_a_word_leave_the_word_whole() {
+        // A comment is no text node (HTML Living Standard, 13.2.6 tree
+        // construction: comments become Comment nodes), so the letters on
+        // both sides meet; inline elements do not break a line either.
+        assert_eq!(html_to_text("<p>win<!-- x -->ner</p>").text, "winner");
+        assert_eq!(
+            html_to_text("<p>w<!---->in<span>n</span><b></b>er today</p>").text,
+            "winner today"
+        );
+        // A comment hiding a whole phrase hides it.
+        assert_eq!(
+            html_to_text("<p>glazed <!-- cheap pills --> bowls</p>").text,
+            "glazed bowls"
+        );
+    }
+
+    #[test]
+    fn character_references_for_invisible_characters_reach_the_text() {
+        // &#8203; is U+200B ZERO WIDTH SPACE: html_to_text keeps it (it is
+        // not whitespace), and the feature extractor's normalisation drops
+        // it (see the tests of chaffgate-mail's respelled-word checks).
+        assert_eq!(html_to_text("<p>win&#8203;ner</p>").text, "win\u{200B}ner");
+    }
+
+    #[test]
     fn collects_links_and_images() {
         let html = r#"<p><a href="https://Shop.Example.com/cart?x=1">www.example.org</a>
             <a href="mailto:orders@example.com">write</a><img src="a.png"><img src="b.png"></p>"#;
