@@ -66,6 +66,7 @@ pub fn server_settings(config: &Config) -> anyhow::Result<ServerSettings> {
             feedback_window: Duration::from_secs(config.audit.feedback_window_secs),
         },
         channels: Channels::new(by_name, thresholds(DEFAULT_CHANNEL)),
+        mail: config.mail.limits(),
     })
 }
 

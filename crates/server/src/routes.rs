@@ -6,7 +6,7 @@ use std::time::Instant;
 use axum::extract::State;
 use axum::http::StatusCode;
 use axum::response::{IntoResponse, Response};
-use chaffgate_mail::{MailLimits, MessageInput};
+use chaffgate_mail::MessageInput;
 use chaffgate_store::{
     DecisionFilter, DecisionId, DecisionInput, DecisionRow, NewDecision, Verdict,
 };
@@ -65,7 +65,7 @@ pub struct BatchAnswer {
 }
 
 impl ScoreRequest {
-    /// The message to judge (a raw mail parsed within the default mail
+    /// The message to judge (a raw mail parsed within the configured mail
     /// caps), the caps it hit, and the client's reference.
     fn into_parts(
         self,
@@ -89,7 +89,7 @@ impl ScoreRequest {
             });
         }
         let (message, cuts) = input
-            .into_message(&MailLimits::default())
+            .into_message(&state.settings().mail)
             .map_err(|err| ApiError::InvalidMessage(err.to_string()))?;
         let cuts = cuts.iter().map(|cut| cut.as_str()).collect();
         Ok((message, cuts, self.client_ref))

@@ -5,6 +5,7 @@ use std::collections::BTreeMap;
 use std::net::SocketAddr;
 use std::time::Duration;
 
+use chaffgate_mail::MailLimits;
 use chaffgate_store::Verdict;
 
 /// Everything the HTTP layer and its background tasks need to know.
@@ -24,6 +25,8 @@ pub struct ServerSettings {
     pub audit: AuditSettings,
     /// Verdict thresholds per channel; `default` always present.
     pub channels: Channels,
+    /// Caps on reading the raw mail of a score request.
+    pub mail: MailLimits,
 }
 
 /// When the answer to a score request is sent.
@@ -125,6 +128,7 @@ impl ServerSettings {
                     review: 0.4,
                 },
             ),
+            mail: MailLimits::default(),
         }
     }
 }
