@@ -112,10 +112,7 @@ fn nesting_safe_len(html: &str, max_nesting: usize) -> usize {
     let bytes = html.as_bytes();
     let mut open: Vec<&[u8]> = Vec::new();
     let mut ix = 0;
-    while let Some(offset) = bytes
-        .get(ix..)
-        .and_then(|rest| rest.iter().position(|&byte| byte == b'<'))
-    {
+    while let Some(offset) = bytes.get(ix..).and_then(|rest| memchr::memchr(b'<', rest)) {
         let at = ix + offset;
         let after = &bytes[at + 1..];
         if after.starts_with(b"!--") {
@@ -333,22 +330,46 @@ pub fn html_to_text(html: &str) -> HtmlText {
 }
 
 /// One line per non-blank line of `text`, runs of whitespace made one space.
+///
+/// Whitespace is Unicode White_Space (`char::is_whitespace`); a run of it
+/// that holds a line feed separates lines, any other run separates words.
+/// Bytes are looked at one by one and only characters outside ASCII are
+/// decoded: this runs over every HTML part's text.
 fn collapse_whitespace(text: &str) -> String {
-    let mut out = String::new();
-    for line in text.lines() {
-        let mut words = line.split_whitespace().peekable();
-        if words.peek().is_none() {
-            continue;
-        }
-        if !out.is_empty() {
-            out.push('\n');
-        }
-        for (index, word) in words.enumerate() {
-            if index > 0 {
-                out.push(' ');
+    let bytes = text.as_bytes();
+    let mut out = String::with_capacity(text.len());
+    let mut word_start: Option<usize> = None;
+    // The separator owed before the next word: none yet, a space or a line
+    // break (a run holding a line feed).
+    let mut has_newline = false;
+    let mut ix = 0;
+    while ix < bytes.len() {
+        let byte = bytes[ix];
+        let (is_space, len) = if byte.is_ascii() {
+            (
+                matches!(byte, b'\t' | b'\n' | 0x0B | 0x0C | b'\r' | b' '),
+                1,
+            )
+        } else {
+            let c = text[ix..].chars().next().unwrap_or(' ');
+            (c.is_whitespace(), c.len_utf8())
+        };
+        if is_space {
+            if let Some(start) = word_start.take() {
+                out.push_str(&text[start..ix]);
             }
-            out.push_str(word);
+            has_newline |= byte == b'\n';
+        } else if word_start.is_none() {
+            if !out.is_empty() {
+                out.push(if has_newline { '\n' } else { ' ' });
+            }
+            has_newline = false;
+            word_start = Some(ix);
         }
+        ix += len;
+    }
+    if let Some(start) = word_start {
+        out.push_str(&text[start..]);
     }
     out
 }
@@ -508,6 +529,30 @@ mod tests {
             let safe = &html[..nesting_safe_len(&html, max_nesting)];
             let depth = tree_depth(safe);
             prop_assert!(depth <= 5 * (max_nesting + 1) + 3, "depth {depth} for {safe:?}");
+        }
+    }
+
+    /// The rule `collapse_whitespace` follows, written with the standard
+    /// library's line and word splitting.
+    fn collapse_by_lines(text: &str) -> String {
+        let lines: Vec<String> = text
+            .split('\n')
+            .map(|line| line.split_whitespace().collect::<Vec<_>>().join(" "))
+            .filter(|line| !line.is_empty())
+            .collect();
+        lines.join("\n")
+    }
+
+    proptest! {
+        #[test]
+        fn whitespace_collapses_like_splitting_lines_then_words(
+            pieces in prop::collection::vec(prop::sample::select(&[
+                "a", "bc", " ", "  ", "\t", "\n", "\r\n", "\r", "\u{000B}", "\u{000C}", "\u{0085}",
+                "\u{00A0}", "\u{2028}", "\u{3000}", "\u{00E9}", "\u{1F381}", "\u{200B}",
+            ][..]), 0..40)
+        ) {
+            let text = pieces.concat();
+            prop_assert_eq!(collapse_whitespace(&text), collapse_by_lines(&text));
         }
     }
 
