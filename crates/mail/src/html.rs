@@ -225,32 +225,39 @@ fn hosts_related(left: &str, right: &str) -> bool {
     left == right || left.ends_with(&format!(".{right}")) || right.ends_with(&format!(".{left}"))
 }
 
-/// Elements whose content a mail client does not show.
-const HIDDEN: [&str; 4] = ["script", "style", "head", "template"];
+/// Elements whose content a mail client does not show. (A `match` on the
+/// name compares lengths first: cheaper than a list for the many elements
+/// of a long part.)
+fn is_hidden(name: &str) -> bool {
+    matches!(name, "script" | "style" | "head" | "template")
+}
 
 /// Elements that start a new line of text.
-const BLOCKS: [&str; 20] = [
-    "address",
-    "article",
-    "blockquote",
-    "br",
-    "dd",
-    "div",
-    "dt",
-    "footer",
-    "h1",
-    "h2",
-    "h3",
-    "h4",
-    "h5",
-    "h6",
-    "header",
-    "hr",
-    "li",
-    "p",
-    "td",
-    "tr",
-];
+fn is_block(name: &str) -> bool {
+    matches!(
+        name,
+        "address"
+            | "article"
+            | "blockquote"
+            | "br"
+            | "dd"
+            | "div"
+            | "dt"
+            | "footer"
+            | "h1"
+            | "h2"
+            | "h3"
+            | "h4"
+            | "h5"
+            | "h6"
+            | "header"
+            | "hr"
+            | "li"
+            | "p"
+            | "td"
+            | "tr"
+    )
+}
 
 /// Extracts visible text, links and images from an HTML document.
 pub fn html_to_text(html: &str) -> HtmlText {
@@ -270,8 +277,9 @@ pub fn html_to_text(html: &str) -> HtmlText {
         match node.value() {
             Node::Element(element) => {
                 let name = element.name();
+                let (is_hidden, is_block) = (is_hidden(name), is_block(name));
                 if is_closing {
-                    if HIDDEN.contains(&name) {
+                    if is_hidden {
                         hidden_depth = hidden_depth.saturating_sub(1);
                     }
                     if name == "a"
@@ -282,15 +290,15 @@ pub fn html_to_text(html: &str) -> HtmlText {
                             text_host: shown_host(&text),
                         });
                     }
-                    if BLOCKS.contains(&name) {
+                    if is_block {
                         raw_text.push('\n');
                     }
                     continue;
                 }
-                if HIDDEN.contains(&name) {
+                if is_hidden {
                     hidden_depth += 1;
                 }
-                if BLOCKS.contains(&name) {
+                if is_block {
                     raw_text.push('\n');
                 }
                 if name == "img" {
@@ -315,9 +323,11 @@ pub fn html_to_text(html: &str) -> HtmlText {
             _ if is_closing => continue,
             _ => {}
         }
-        let children: Vec<_> = node.children().collect();
-        for child in children.into_iter().rev() {
-            stack.push((child, false));
+        // Last child first, so that the first pops first.
+        let mut child = node.last_child();
+        while let Some(next) = child {
+            stack.push((next, false));
+            child = next.prev_sibling();
         }
     }
 

@@ -278,7 +278,7 @@ pub(crate) const MAX_DIGIT_WORD_BYTES: usize = 32;
 
 /// The letter an ASCII stand-in usually replaces (common practice, no
 /// source).
-fn stand_in_letter(byte: u8) -> Option<u8> {
+const fn stand_in_letter(byte: u8) -> Option<u8> {
     Some(match byte {
         b'0' => b'o',
         b'1' | b'!' => b'i',
@@ -302,8 +302,8 @@ fn stand_in_letter(byte: u8) -> Option<u8> {
 /// number or `@` (`10am`, `1st`, `@name`) is a quantity, an ordinal or a
 /// handle, not a respelling, and is skipped.
 ///
-/// One pass notes which byte classes each token holds; only tokens with
-/// both a letter and a stand-in are looked at again.
+/// The scan jumps from stand-in to stand-in; only the tokens holding one
+/// are looked at whole.
 pub(crate) fn for_each_digit_word(
     text: &str,
     cap: usize,
@@ -312,57 +312,43 @@ pub(crate) fn for_each_digit_word(
 ) {
     let bytes = text.as_bytes();
     let mut taken = 0;
-    let mut start = 0;
-    let mut seen = 0u8;
-    for end in 0..=bytes.len() {
-        let class = bytes
-            .get(end)
-            .map_or(SPACE, |&byte| CLASSES[usize::from(byte)]);
-        if class != SPACE {
-            seen |= class;
-            continue;
-        }
-        if seen & (LETTER | STAND_IN) == LETTER | STAND_IN {
+    let mut from = 0;
+    while let Some(offset) = bytes[from..]
+        .iter()
+        .position(|&byte| IS_STAND_IN[usize::from(byte)])
+    {
+        let at = from + offset;
+        // `from` is 0 or just past whitespace, so the token starts there
+        // at the earliest.
+        let start = bytes[from..at]
+            .iter()
+            .rposition(u8::is_ascii_whitespace)
+            .map_or(from, |i| from + i + 1);
+        let end = bytes[at..]
+            .iter()
+            .position(u8::is_ascii_whitespace)
+            .map_or(bytes.len(), |i| at + i);
+        if let Some(core) = digit_word_core(&bytes[start..end]) {
             if taken >= cap {
                 return;
             }
-            if let Some(core) = digit_word_core(&bytes[start..end]) {
-                out.clear();
-                for &byte in core {
-                    out.push(char::from(stand_in_letter(byte).unwrap_or(byte)));
-                }
-                taken += 1;
-                f(out);
+            out.clear();
+            for &byte in core {
+                out.push(char::from(stand_in_letter(byte).unwrap_or(byte)));
             }
+            taken += 1;
+            f(out);
         }
-        seen = 0;
-        start = end + 1;
+        from = end;
     }
 }
 
-/// Byte classes of [`for_each_digit_word`].
-const SPACE: u8 = 1;
-const LETTER: u8 = 2;
-const STAND_IN: u8 = 4;
-const OTHER: u8 = 8;
-
-static CLASSES: [u8; 256] = {
-    let mut table = [OTHER; 256];
+/// The bytes [`stand_in_letter`] maps, as a table for the scan.
+static IS_STAND_IN: [bool; 256] = {
+    let mut table = [false; 256];
     let mut byte = 0;
     while byte < 256 {
-        let b = byte as u8;
-        table[byte] = if b.is_ascii_whitespace() {
-            SPACE
-        } else if b.is_ascii_alphabetic() {
-            LETTER
-        } else if matches!(
-            b,
-            b'0' | b'1' | b'3' | b'4' | b'5' | b'7' | b'8' | b'9' | b'@' | b'$' | b'!' | b'|'
-        ) {
-            STAND_IN
-        } else {
-            OTHER
-        };
+        table[byte] = stand_in_letter(byte as u8).is_some();
         byte += 1;
     }
     table
@@ -565,6 +551,27 @@ mod tests {
         assert!(digit_words("shop.example.com/f00 x@example.com").is_empty());
         let long = format!("{}0", "a".repeat(MAX_DIGIT_WORD_BYTES));
         assert!(digit_words(&long).is_empty());
+    }
+
+    proptest! {
+        #[test]
+        fn digit_words_are_those_of_each_whitespace_token(
+            pieces in prop::collection::vec(prop::sample::select(&[
+                "fr", "ee", "3", "0", "1", "2", "@", "$", "!", "|", " ", "\t", "\n", ".", "(", "\u{00E9}", "x",
+            ][..]), 0..40)
+        ) {
+            let text = pieces.concat();
+            let expected: Vec<String> = text
+                .split(|c: char| c.is_ascii_whitespace())
+                .filter_map(|token| digit_word_core(token.as_bytes()))
+                .map(|core| {
+                    core.iter()
+                        .map(|&byte| char::from(stand_in_letter(byte).unwrap_or(byte)))
+                        .collect()
+                })
+                .collect();
+            prop_assert_eq!(digit_words(&text), expected);
+        }
     }
 
     #[test]
