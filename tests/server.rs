@@ -583,3 +583,21 @@ fn client_time_is_refused_by_default_and_recorded_when_allowed() {
         (400, Some("invalid_parameter"))
     );
 }
+
+#[test]
+fn configured_mail_caps_apply_to_raw_mail_in_score_requests() {
+    let dir = tempfile::tempdir().unwrap();
+    let server = TestServer::start_in(dir.path(), &[("CHAFFGATE_MAIL_MAX_BYTES", "80")]);
+    let mail = "From: Shop <shop@coop-shop.example.com>\r\n\
+                Subject: Your glazed bowls have shipped\r\n\
+                \r\n\
+                They left the studio this morning.\r\n";
+    let body = json!({ "raw": mail }).to_string();
+    let (status, decision) = server.post("/v1/score", &body);
+    assert_eq!(status, 200, "{decision}");
+    assert_eq!(
+        decision["mail_truncated"],
+        json!(["message_too_large"]),
+        "{decision}"
+    );
+}

@@ -14,6 +14,7 @@ use std::path::{Path, PathBuf};
 use std::time::Duration;
 
 use anyhow::{Context, bail};
+use chaffgate_mail::MailLimits;
 use chaffgate_metrics::{Direction, PageHinkleyParams};
 use chaffgate_model::UpdateRule;
 use chaffgate_report::time::{format_span, parse_span};
@@ -33,6 +34,7 @@ pub struct Config {
     pub audit: AuditConfig,
     pub learner: LearnerConfig,
     pub features: FeatureSettings,
+    pub mail: MailConfig,
     pub model: ModelConfig,
     pub tally: TallyConfig,
     pub alarms: AlarmsConfig,
@@ -49,6 +51,7 @@ impl Default for Config {
             audit: AuditConfig::default(),
             learner: LearnerConfig::default(),
             features: FeatureSettings::default(),
+            mail: MailConfig::default(),
             model: ModelConfig::default(),
             tally: TallyConfig::default(),
             alarms: AlarmsConfig::default(),
@@ -145,6 +148,53 @@ impl Default for LearnerConfig {
             checkpoint_every_secs: 300,
             keep_checkpoints: 5,
             poll_every_ms: 1000,
+        }
+    }
+}
+
+/// Caps on reading one raw mail (score requests, JSONL corpora, mail
+/// folders); see [`MailLimits`], whose defaults these are.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields, default)]
+pub struct MailConfig {
+    pub max_bytes: u64,
+    pub max_mime_depth: u32,
+    pub max_parts: u32,
+    pub max_headers: u32,
+    pub max_decoded_bytes: u64,
+    pub time_budget_ms: u64,
+}
+
+/// Longest allowed `mail.time_budget_ms`: a minute per mail is already far
+/// past any useful budget, so more is taken for a unit mistake.
+const MAX_MAIL_TIME_BUDGET_MS: u64 = 60_000;
+
+impl Default for MailConfig {
+    fn default() -> Self {
+        let limits = MailLimits::default();
+        MailConfig {
+            max_bytes: limits.max_bytes as u64,
+            max_mime_depth: u32::try_from(limits.max_mime_depth).unwrap_or(u32::MAX),
+            max_parts: u32::try_from(limits.max_parts).unwrap_or(u32::MAX),
+            max_headers: u32::try_from(limits.max_headers).unwrap_or(u32::MAX),
+            max_decoded_bytes: limits.max_decoded_bytes as u64,
+            time_budget_ms: u64::try_from(limits.time_budget.as_millis()).unwrap_or(u64::MAX),
+        }
+    }
+}
+
+impl MailConfig {
+    /// The caps as the mail reader takes them.
+    pub fn limits(&self) -> MailLimits {
+        let size = |value: u64| usize::try_from(value).unwrap_or(usize::MAX);
+        let count = |value: u32| usize::try_from(value).unwrap_or(usize::MAX);
+        MailLimits {
+            max_bytes: size(self.max_bytes),
+            max_mime_depth: count(self.max_mime_depth),
+            max_parts: count(self.max_parts),
+            max_headers: count(self.max_headers),
+            max_decoded_bytes: size(self.max_decoded_bytes),
+            time_budget: std::time::Duration::from_millis(self.time_budget_ms),
         }
     }
 }
@@ -577,6 +627,21 @@ impl Config {
                     .map(|p| p.to_string().replacen("model.", &table, 1)),
             );
         }
+        if let Err(found) = self.mail.limits().validate() {
+            // The time budget is checked below under its config name.
+            problems.extend(
+                found
+                    .iter()
+                    .filter(|p| p.key != "time_budget")
+                    .map(|p| p.to_string()),
+            );
+        }
+        let budget = self.mail.time_budget_ms;
+        if !(1..=MAX_MAIL_TIME_BUDGET_MS).contains(&budget) {
+            problems.push(format!(
+                "mail.time_budget_ms = {budget}: must be between 1 and {MAX_MAIL_TIME_BUDGET_MS}"
+            ));
+        }
         let server = &self.server;
         if let Err(err) = server.listen.parse::<std::net::SocketAddr>() {
             let listen = &server.listen;
@@ -1006,6 +1071,43 @@ mod tests {
             Config::default().report_settings(),
             ReportSettings::default()
         );
+    }
+
+    #[test]
+    fn mail_caps_come_from_the_file_and_the_environment() {
+        let config = load_str(
+            "[mail]\nmax_parts = 12\ntime_budget_ms = 50\n",
+            &[("CHAFFGATE_MAIL_MAX_BYTES", "65536")],
+        )
+        .unwrap();
+        let limits = config.mail.limits();
+        assert_eq!(limits.max_parts, 12);
+        assert_eq!(limits.max_bytes, 65_536);
+        assert_eq!(limits.time_budget, std::time::Duration::from_millis(50));
+        assert_eq!(
+            limits.max_decoded_bytes,
+            MailLimits::default().max_decoded_bytes
+        );
+        assert_eq!(Config::default().mail.limits(), MailLimits::default());
+    }
+
+    #[test]
+    fn bad_mail_caps_are_all_reported() {
+        let err = load_str(
+            "[mail]\nmax_parts = 0\nmax_mime_depth = 101\ntime_budget_ms = 0\n",
+            &[("CHAFFGATE_MAIL_MAX_DECODED_BYTES", "0")],
+        )
+        .unwrap_err();
+        let text = format!("{err:#}");
+        for expected in [
+            "mail.max_parts = 0: must be at least 1",
+            "mail.max_decoded_bytes = 0: must be at least 1",
+            "mail.max_mime_depth = 101: must be at most 100",
+            "mail.time_budget_ms = 0: must be between 1 and 60000",
+        ] {
+            assert!(text.contains(expected), "{expected} missing from {text}");
+        }
+        assert!(!text.contains("mail.time_budget ="), "{text}");
     }
 
     #[test]

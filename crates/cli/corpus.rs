@@ -90,18 +90,30 @@ pub fn detect_format(path: &Path, bytes: &[u8]) -> CorpusFormat {
     }
 }
 
-/// Loads a corpus file. Empty lines are ignored.
-pub fn load(path: &Path, format: Option<CorpusFormat>, skip_bad: bool) -> anyhow::Result<Corpus> {
+/// Loads a corpus file, reading raw mails within `limits`. Empty lines are
+/// ignored.
+pub fn load(
+    path: &Path,
+    format: Option<CorpusFormat>,
+    skip_bad: bool,
+    limits: &MailLimits,
+) -> anyhow::Result<Corpus> {
     let bytes =
         std::fs::read(path).with_context(|| format!("reading corpus {}", path.display()))?;
     let format = format.unwrap_or_else(|| detect_format(path, &bytes));
-    parse(&bytes, format, skip_bad).with_context(|| format!("reading corpus {}", path.display()))
+    parse(&bytes, format, skip_bad, limits)
+        .with_context(|| format!("reading corpus {}", path.display()))
 }
 
 /// Loads folders of raw mails (files ending in `.eml`), labelled by the
-/// folder they are in. The mails are taken in file-name order across both
-/// folders (name the files by date for a time-ordered progressive eval).
-pub fn load_mail_dirs(junk_dir: Option<&Path>, fine_dir: Option<&Path>) -> anyhow::Result<Corpus> {
+/// folder they are in, each read within `limits`. The mails are taken in
+/// file-name order across both folders (name the files by date for a
+/// time-ordered progressive eval).
+pub fn load_mail_dirs(
+    junk_dir: Option<&Path>,
+    fine_dir: Option<&Path>,
+    limits: &MailLimits,
+) -> anyhow::Result<Corpus> {
     let mut files: Vec<(std::ffi::OsString, PathBuf, bool)> = Vec::new();
     for (dir, is_junk) in [(junk_dir, true), (fine_dir, false)] {
         let Some(dir) = dir else { continue };
@@ -120,12 +132,11 @@ pub fn load_mail_dirs(junk_dir: Option<&Path>, fine_dir: Option<&Path>) -> anyho
         }
     }
     files.sort();
-    let limits = MailLimits::default();
     let mut items = Vec::with_capacity(files.len());
     for (_, path, is_junk) in files {
         let raw =
             std::fs::read(&path).with_context(|| format!("reading mail {}", path.display()))?;
-        let parsed = chaffgate_mail::parse_mail(&raw, &limits);
+        let parsed = chaffgate_mail::parse_mail(&raw, limits);
         items.push(Labelled {
             message: parsed.message,
             is_junk,
@@ -142,7 +153,12 @@ pub fn load_mail_dirs(junk_dir: Option<&Path>, fine_dir: Option<&Path>) -> anyho
 }
 
 /// Parses corpus bytes; see [`load`].
-pub fn parse(bytes: &[u8], format: CorpusFormat, skip_bad: bool) -> anyhow::Result<Corpus> {
+pub fn parse(
+    bytes: &[u8],
+    format: CorpusFormat,
+    skip_bad: bool,
+    limits: &MailLimits,
+) -> anyhow::Result<Corpus> {
     let mut items = Vec::new();
     let mut skipped = Vec::new();
     for (index, raw) in bytes.split(|b| *b == b'\n').enumerate() {
@@ -153,7 +169,7 @@ pub fn parse(bytes: &[u8], format: CorpusFormat, skip_bad: bool) -> anyhow::Resu
         }
         let parsed = match std::str::from_utf8(raw) {
             Ok(line) => match format {
-                CorpusFormat::Jsonl => parse_jsonl_line(line),
+                CorpusFormat::Jsonl => parse_jsonl_line(line, limits),
                 CorpusFormat::Tsv => parse_tsv_line(line),
             },
             Err(err) => Err(format!("not valid UTF-8 ({err})")),
@@ -205,7 +221,7 @@ fn parse_tsv_line(line: &str) -> Result<Labelled, String> {
     })
 }
 
-fn parse_jsonl_line(line: &str) -> Result<Labelled, String> {
+fn parse_jsonl_line(line: &str, limits: &MailLimits) -> Result<Labelled, String> {
     let value: serde_json::Value =
         serde_json::from_str(line).map_err(|err| format!("not valid JSON: {err}"))?;
     let serde_json::Value::Object(mut object) = value else {
@@ -229,9 +245,7 @@ fn parse_jsonl_line(line: &str) -> Result<Labelled, String> {
     }
     let input: MessageInput = serde_json::from_value(serde_json::Value::Object(object))
         .map_err(|err| format!("not a message: {err}"))?;
-    let (message, _cuts) = input
-        .into_message(&MailLimits::default())
-        .map_err(|err| err.to_string())?;
+    let (message, _cuts) = input.into_message(limits).map_err(|err| err.to_string())?;
     if message.is_empty() {
         return Err("the message has no subject, body, sender or meta".to_owned());
     }
@@ -359,6 +373,7 @@ mod tests {
             b"spam\tWin now\nham\thello there\r\n\nfine\tok\n",
             CorpusFormat::Tsv,
             false,
+            &MailLimits::default(),
         )
         .unwrap();
         let labels: Vec<bool> = corpus.items.iter().map(|i| i.is_junk).collect();
@@ -368,7 +383,13 @@ mod tests {
 
     #[test]
     fn malformed_line_stops_with_its_number() {
-        let err = parse(b"ham\tok\nno tab here\n", CorpusFormat::Tsv, false).unwrap_err();
+        let err = parse(
+            b"ham\tok\nno tab here\n",
+            CorpusFormat::Tsv,
+            false,
+            &MailLimits::default(),
+        )
+        .unwrap_err();
         let text = format!("{err:#}");
         assert!(text.contains("line 2"), "{text}");
         assert!(text.contains("no tab"), "{text}");
@@ -380,6 +401,7 @@ mod tests {
             b"ham\tok\nmaybe\tunsure\n\xff\xfe\tbytes\njunk\tbuy\n",
             CorpusFormat::Tsv,
             true,
+            &MailLimits::default(),
         )
         .unwrap();
         assert_eq!(corpus.items.len(), 2);
@@ -393,7 +415,7 @@ mod tests {
     fn jsonl_reads_message_fields_and_label() {
         let text = br#"{"subject":"Order 12","body":"Where is it?","sender":"a@shop.example.org","meta":{"vip":true},"label":"fine"}
 {"body":"cheap watches","label":"junk"}"#;
-        let corpus = parse(text, CorpusFormat::Jsonl, false).unwrap();
+        let corpus = parse(text, CorpusFormat::Jsonl, false, &MailLimits::default()).unwrap();
         assert_eq!(corpus.items.len(), 2);
         assert_eq!(corpus.items[0].message.subject.as_deref(), Some("Order 12"));
         assert!(corpus.items[1].is_junk);
@@ -404,11 +426,34 @@ mod tests {
         let mail =
             "From: Ines <ines@customer.example.org>\r\nSubject: Order 12\r\n\r\nWhere is it?\r\n";
         let line = serde_json::json!({ "raw": mail, "label": "fine" }).to_string();
-        let corpus = parse(line.as_bytes(), CorpusFormat::Jsonl, false).unwrap();
+        let corpus = parse(
+            line.as_bytes(),
+            CorpusFormat::Jsonl,
+            false,
+            &MailLimits::default(),
+        )
+        .unwrap();
         let message = &corpus.items[0].message;
         assert_eq!(message.subject.as_deref(), Some("Order 12"));
         assert!(message.body.as_deref().unwrap().contains("Where is it?"));
         assert!(message.meta.keys().any(|key| key.starts_with("mail.")));
+    }
+
+    #[test]
+    fn jsonl_raw_mail_is_read_within_the_given_caps() {
+        let mail = "Subject: Order 12\r\n\r\nWhere is my parcel of glazed bowls?\r\n";
+        let line = serde_json::json!({ "raw": mail, "label": "fine" }).to_string();
+        let limits = MailLimits {
+            max_bytes: 30,
+            ..MailLimits::default()
+        };
+        let corpus = parse(line.as_bytes(), CorpusFormat::Jsonl, false, &limits).unwrap();
+        let message = &corpus.items[0].message;
+        assert_eq!(
+            message.meta.get("mail.truncated.message_too_large"),
+            Some(&chaffgate_text::MetaValue::Bool(true))
+        );
+        assert!(!message.body.as_deref().unwrap_or("").contains("bowls"));
     }
 
     #[test]
@@ -421,7 +466,13 @@ mod tests {
             (r#"[1,2]"#, "JSON object"),
             (r#"{"body":"x""#, "not valid JSON"),
         ] {
-            let err = parse(line.as_bytes(), CorpusFormat::Jsonl, false).unwrap_err();
+            let err = parse(
+                line.as_bytes(),
+                CorpusFormat::Jsonl,
+                false,
+                &MailLimits::default(),
+            )
+            .unwrap_err();
             let text = format!("{err:#}");
             assert!(text.contains(expected), "{line}: {text}");
             assert!(text.contains("line 1"), "{line}: {text}");
@@ -432,7 +483,7 @@ mod tests {
     fn jsonl_keeps_arrival_time_and_reads_past_bookkeeping() {
         let text = br#"{"id":"m-1","at":"2026-03-02T00:00:00Z","week":1,"channel":"mail","campaign":"order-question","body":"Where is it?","label":"fine"}
 {"body":"no clock here","label":"junk"}"#;
-        let corpus = parse(text, CorpusFormat::Jsonl, false).unwrap();
+        let corpus = parse(text, CorpusFormat::Jsonl, false, &MailLimits::default()).unwrap();
         // 1772409600 s from GNU date: `date -u -d 2026-03-02T00:00:00Z +%s`.
         assert_eq!(corpus.items[0].at_unix_ms, Some(1_772_409_600_000));
         assert_eq!(corpus.items[0].message.channel.as_deref(), Some("mail"));
@@ -450,7 +501,13 @@ mod tests {
             ),
             (r#"{"body":"x","idd":"m-1","label":"fine"}"#, "idd"),
         ] {
-            let err = parse(line.as_bytes(), CorpusFormat::Jsonl, false).unwrap_err();
+            let err = parse(
+                line.as_bytes(),
+                CorpusFormat::Jsonl,
+                false,
+                &MailLimits::default(),
+            )
+            .unwrap_err();
             let text = format!("{err:#}");
             assert!(text.contains(expected), "{line}: {text}");
         }

@@ -302,10 +302,13 @@ fn init_logging(format: LogFormat) {
     }
 }
 
-fn load_corpus(args: &CorpusArgs) -> anyhow::Result<Corpus> {
+fn load_corpus(config: &Config, args: &CorpusArgs) -> anyhow::Result<Corpus> {
+    let limits = config.mail.limits();
     let mut corpus = match &args.corpus {
-        Some(path) => corpus::load(path, args.format, args.skip_bad)?,
-        None => corpus::load_mail_dirs(args.junk_dir.as_deref(), args.fine_dir.as_deref())?,
+        Some(path) => corpus::load(path, args.format, args.skip_bad, &limits)?,
+        None => {
+            corpus::load_mail_dirs(args.junk_dir.as_deref(), args.fine_dir.as_deref(), &limits)?
+        }
     };
     if !corpus.skipped.is_empty() {
         let count = corpus.skipped.len();
@@ -330,7 +333,7 @@ fn train(config: &Config, args: TrainArgs) -> anyhow::Result<()> {
     let key = parse_key(args.hash_key.as_deref(), || {
         HashKey::from_bytes(rand::random::<[u8; 16]>())
     })?;
-    let corpus = load_corpus(&args.corpus)?;
+    let corpus = load_corpus(config, &args.corpus)?;
     let mut pipeline = Pipeline::new(config.features.clone(), config.model.update_rule(), key)?;
     for _ in 0..args.passes {
         for item in &corpus.items {
@@ -368,7 +371,7 @@ fn evaluate(config: &Config, args: EvalArgs) -> anyhow::Result<()> {
     let key = parse_key(args.hash_key.as_deref(), || {
         HashKey::from_hex(EVALUATION_KEY_HEX).unwrap_or_else(|_| HashKey::from_bytes([0; 16]))
     })?;
-    let corpus = load_corpus(&args.corpus)?;
+    let corpus = load_corpus(config, &args.corpus)?;
     let mut pipeline = Pipeline::new(config.features.clone(), config.model.update_rule(), key)?;
     let report = eval::run(&mut pipeline, &corpus.items, protocol, args.threshold)?;
     if args.json {

@@ -93,6 +93,7 @@ pub fn server_settings(config: &Config) -> anyhow::Result<ServerSettings> {
             current,
             settings: config.report_settings(),
         },
+        mail: config.mail.limits(),
     })
 }
 

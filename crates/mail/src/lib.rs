@@ -12,6 +12,7 @@ mod html;
 mod input;
 mod limits;
 mod parse;
+mod qp;
 
 pub use facts::{Attachment, MailFacts, MimeShape, mail_meta};
 pub use html::{HtmlText, Link, MAX_HTML_NESTING, html_to_text};

@@ -17,10 +17,12 @@ use mailparse::{
     DispositionType, MailAddr, MailHeader, MailHeaderMap, ParsedContentType, addrparse_header,
     dateparse, parse_content_disposition, parse_content_type, parse_header,
 };
+use memchr::memmem::Finder;
 
 use crate::facts::{Attachment, MailFacts, MimeShape, address_domain, mail_meta};
 use crate::html::{Link, html_to_text};
 use crate::limits::{MailLimits, Truncation};
+use crate::qp::decode_quoted_printable;
 
 /// The result of [`parse_mail`].
 #[derive(Debug, Clone, PartialEq)]
@@ -239,7 +241,8 @@ impl<'l> Walker<'l> {
         alternative_group: Option<usize>,
         is_digest: bool,
     ) {
-        let Some(mut delimiter_at) = find_delimiter_line(body, 0, delimiter) else {
+        let finder = Finder::new(delimiter);
+        let Some(mut delimiter_at) = find_delimiter_line(body, 0, &finder) else {
             return;
         };
         loop {
@@ -249,7 +252,7 @@ impl<'l> Walker<'l> {
             let Some(part_start) = line_end(body, delimiter_at) else {
                 return;
             };
-            let next = find_delimiter_line(body, part_start, delimiter);
+            let next = find_delimiter_line(body, part_start, &finder);
             // The line break before a delimiter belongs to the delimiter.
             let part_end = match next {
                 Some(next_at) => strip_line_break_before(body, part_start, next_at),
@@ -359,7 +362,12 @@ impl<'l> Walker<'l> {
             }
             return Cow::Borrowed(&[]);
         }
-        let mut decoded = match Body::new(body, ctype, transfer_encoding) {
+        if transfer_encoding.as_deref() == Some("quoted-printable") {
+            // Same bytes as mailparse's decoder, several times faster.
+            let decoded = Cow::Owned(decode_quoted_printable(body));
+            return self.cut_decoded(decoded, remaining);
+        }
+        let decoded = match Body::new(body, ctype, transfer_encoding) {
             Body::Base64(encoded) | Body::QuotedPrintable(encoded) => encoded
                 .get_decoded()
                 .map(Cow::Owned)
@@ -367,6 +375,11 @@ impl<'l> Walker<'l> {
             Body::SevenBit(text) | Body::EightBit(text) => Cow::Borrowed(text.get_raw()),
             Body::Binary(binary) => Cow::Borrowed(binary.get_raw()),
         };
+        self.cut_decoded(decoded, remaining)
+    }
+
+    /// Cuts decoded bytes to what the cap still allows and counts them.
+    fn cut_decoded<'a>(&mut self, mut decoded: Cow<'a, [u8]>, remaining: usize) -> Cow<'a, [u8]> {
         if decoded.len() > remaining {
             self.flag(Truncation::DecodedTooLarge);
             decoded = match decoded {
@@ -504,10 +517,7 @@ fn addresses_in(text: &str) -> Vec<String> {
 
 /// Index just past the `\n` ending the line that contains `ix`.
 fn line_end(data: &[u8], ix: usize) -> Option<usize> {
-    data.get(ix..)?
-        .iter()
-        .position(|&byte| byte == b'\n')
-        .map(|offset| ix + offset + 1)
+    memchr::memchr(b'\n', data.get(ix..)?).map(|offset| ix + offset + 1)
 }
 
 /// Where the body starts when the header section could not be read to its
@@ -528,18 +538,21 @@ fn body_after_blank_line(raw: &[u8], mut ix: usize) -> usize {
 
 /// Start of the first line at or after line start `from` that is a
 /// delimiter line: the delimiter, an optional `--`, then only whitespace.
-fn find_delimiter_line(data: &[u8], from: usize, delimiter: &[u8]) -> Option<usize> {
-    let mut ix = from;
-    while ix < data.len() {
-        let end = line_end(data, ix).unwrap_or(data.len());
-        let line = &data[ix..end];
-        if let Some(rest) = line.strip_prefix(delimiter) {
-            let rest = rest.strip_prefix(b"--").unwrap_or(rest);
-            if rest.iter().all(u8::is_ascii_whitespace) {
-                return Some(ix);
-            }
+/// `finder` searches for the delimiter; hits inside a line are passed over.
+fn find_delimiter_line(data: &[u8], from: usize, finder: &Finder<'_>) -> Option<usize> {
+    let delimiter_len = finder.needle().len();
+    let rest = data.get(from..)?;
+    for offset in finder.find_iter(rest) {
+        let at = from + offset;
+        if at > from && data[at - 1] != b'\n' {
+            continue;
         }
-        ix = end;
+        let end = line_end(data, at).unwrap_or(data.len());
+        let after = &data[at + delimiter_len..end];
+        let after = after.strip_prefix(b"--").unwrap_or(after);
+        if after.iter().all(u8::is_ascii_whitespace) {
+            return Some(at);
+        }
     }
     None
 }
@@ -590,9 +603,16 @@ mod tests {
     #[test]
     fn delimiter_line_needs_only_whitespace_after_it() {
         let data = b"--abc\n--abcd\n--abc--  \r\n";
-        assert_eq!(find_delimiter_line(data, 0, b"--abc"), Some(0));
-        assert_eq!(find_delimiter_line(data, 6, b"--abc"), Some(13));
-        assert_eq!(find_delimiter_line(b"x--abc\n", 0, b"--abc"), None);
+        let finder = Finder::new(b"--abc");
+        assert_eq!(find_delimiter_line(data, 0, &finder), Some(0));
+        assert_eq!(find_delimiter_line(data, 6, &finder), Some(13));
+        assert_eq!(find_delimiter_line(b"x--abc\n", 0, &finder), None);
+        // A hit inside a line is passed over for the next line's.
+        assert_eq!(
+            find_delimiter_line(b"a --abc\n--abc\n", 0, &finder),
+            Some(8)
+        );
+        assert_eq!(find_delimiter_line(b"--abcd\n", 0, &finder), None);
     }
 
     #[test]

@@ -6,7 +6,7 @@ use std::time::Instant;
 use axum::extract::State;
 use axum::http::StatusCode;
 use axum::response::{IntoResponse, Response};
-use chaffgate_mail::{MailLimits, MessageInput};
+use chaffgate_mail::MessageInput;
 use chaffgate_store::{
     DecisionFilter, DecisionId, DecisionInput, DecisionRow, NewDecision, Verdict,
 };
@@ -95,8 +95,8 @@ impl ScoreRequest {
     }
 }
 
-/// The message a client sent, with a raw mail parsed within the default
-/// mail caps, and the caps it hit. Only the raw mail's size is checked
+/// The message a client sent, with a raw mail parsed within the
+/// configured mail caps, and the caps it hit. Only the raw mail's size is checked
 /// here; [`check_message`] checks the rest.
 fn read_input(
     state: &AppState,
@@ -111,7 +111,7 @@ fn read_input(
         });
     }
     let (message, cuts) = input
-        .into_message(&MailLimits::default())
+        .into_message(&state.settings().mail)
         .map_err(|err| ApiError::InvalidMessage(err.to_string()))?;
     Ok((message, cuts.iter().map(|cut| cut.as_str()).collect()))
 }

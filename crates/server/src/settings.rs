@@ -5,6 +5,7 @@ use std::collections::BTreeMap;
 use std::net::SocketAddr;
 use std::time::Duration;
 
+use chaffgate_mail::MailLimits;
 use chaffgate_store::Verdict;
 
 use crate::alarms::AlarmSettings;
@@ -33,6 +34,8 @@ pub struct ServerSettings {
     pub alarms: AlarmSettings,
     /// What drift reports use unless a request says otherwise.
     pub reports: crate::reports::ReportDefaults,
+    /// Caps on reading the raw mail of a score request.
+    pub mail: MailLimits,
 }
 
 /// When the answer to a score request is sent.
@@ -141,6 +144,7 @@ impl ServerSettings {
             tally: TallySettings::default(),
             alarms: AlarmSettings::default(),
             reports: crate::reports::ReportDefaults::default(),
+            mail: MailLimits::default(),
         }
     }
 }

@@ -80,9 +80,54 @@ pub(crate) fn is(byte: u8, mask: u8) -> bool {
     CLASSES[usize::from(byte)] & mask != 0
 }
 
+/// Calls `f(offset, run, is_ascii)` for the maximal runs of ASCII and of
+/// non-ASCII characters of `text`, in order. Mostly-ASCII text then takes
+/// the byte-wise fast paths for most of its length. An ASCII byte is
+/// always a whole character, so every run is a `str` of its own.
+#[inline]
+pub(crate) fn for_each_run<'a>(text: &'a str, mut f: impl FnMut(usize, &'a str, bool)) {
+    let bytes = text.as_bytes();
+    let mut start = 0;
+    while start < bytes.len() {
+        let is_ascii = bytes[start].is_ascii();
+        let len = bytes[start..]
+            .iter()
+            .position(|byte| byte.is_ascii() != is_ascii)
+            .unwrap_or(bytes.len() - start);
+        f(start, &text[start..start + len], is_ascii);
+        start += len;
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn runs_alternate_and_cover_the_text() {
+        let text = "caf\u{00E9} \u{00A3}5, na\u{00EF}ve\u{1F381}";
+        let mut runs = Vec::new();
+        for_each_run(text, |offset, run, is_ascii| {
+            assert_eq!(&text[offset..offset + run.len()], run);
+            assert_eq!(run.is_ascii(), is_ascii);
+            runs.push(run);
+        });
+        assert_eq!(runs.concat(), text);
+        assert_eq!(
+            runs,
+            [
+                "caf",
+                "\u{00E9}",
+                " ",
+                "\u{00A3}",
+                "5, na",
+                "\u{00EF}",
+                "ve",
+                "\u{1F381}"
+            ]
+        );
+        for_each_run("", |_, _, _| panic!("no runs in empty text"));
+    }
 
     #[test]
     fn classes_match_their_predicates() {

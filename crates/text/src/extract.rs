@@ -28,6 +28,10 @@
 //! | `<f> length 64-127 chars` | `<f>.length` | `0`, `1`, `2-3`, `4-7`, …, `1048576+` | field present |
 //! | `<f> uppercase-share 1/4-1/2` | `<f>.upper` | share bucket | field has cased letters |
 //! | `<f> digit-share none` | `<f>.digits` | share bucket | field has non-space characters |
+//! | `<f> skeleton "parcel"` | `<f>.skeleton` | UTS #39 skeleton | each word with a letter, each joined and each digit-mapped word, if `skeletons` |
+//! | `<f> joined "winner"` | `<f>.joined` | the letters, at most 64 | 3+ spelled-out letters in a row (`w i n n e r`), if `joined_letters` |
+//! | `<f> digit-mapped "free"` | `<f>.digitmap` | letter reading | tokens mixing letters and stand-ins (`fr33`), if `digit_letters` |
+//! | `<f> mixed-script-words 1` | `<f>.mixed` | `1`, `2-3`, `4-7`, `8+` | words mixing scripts in the field, if `mixed_script` |
 //! | `url count 2-3` | `url.count` | `0`, `1`, `2-3`, `4-7`, `8+` | always |
 //! | `url host "prize.example.com"` | `url.host` | host | each URL in subject or body (see [`crate::urls`]) |
 //! | `url base-domain "example.com"` | `url.base` | last two labels | each URL host with two or more labels, not an IP |
@@ -49,10 +53,20 @@
 //! Sender, channel and meta keys are normalised like text. Buckets are
 //! defined in the `buckets` module.
 //!
+//! The last four kinds defend against respelled words (see the
+//! `obfuscation` module for the exact rules). They come beside the
+//! features of the text as written, which stay as they are. The plain
+//! spelling of a word and its respellings meet in the skeleton kind:
+//! `parcel`, `pаrcel` (Cyrillic `а`), `p a r c e l` (joined) and `p@rcel`
+//! (digit-mapped) all give `<f> skeleton "parcel"`, while the `joined` and
+//! `digit-mapped` features mark the trick itself. A skeleton is a matching
+//! key, not a spelling (`m` becomes `rn`, so `money` gives `"rnoney"`).
+//!
 //! Words and pairs run over the whole field, across punctuation. A field
-//! gives at most `max_words_per_field` words (with their pairs and n-grams)
-//! and at most as many other tokens (symbols, `!` runs, numbers) and URL
-//! hosts; the sender at most as many words. Later ones are ignored, so
+//! gives at most `max_words_per_field` words (with their pairs, n-grams,
+//! skeletons and joined letters) and at most as many other tokens (symbols,
+//! `!` runs, numbers), digit-mapped tokens and URL hosts; the sender at most
+//! as many words. Later ones are ignored, so
 //! hostile input costs time linear in its size and no more.
 //!
 //! # Values
@@ -86,6 +100,7 @@ use crate::cache::{FeatureCache, WordId};
 use crate::hashing::{HashKey, TagState, index_of, mask_for};
 use crate::message::{Message, MetaValue};
 use crate::normalize::normalize_into;
+use crate::obfuscation::{LetterRun, for_each_digit_word, is_mixed_script, skeleton_of};
 use crate::sender::{parse_sender, top_level};
 use crate::settings::{FeatureSettings, SettingsProblem};
 use crate::sort::{SortScratch, sort_dedup};
@@ -128,11 +143,19 @@ enum Tag {
     SenderNone,
     Channel,
     Meta,
+    SubjectSkeleton,
+    SubjectJoined,
+    SubjectDigitMap,
+    SubjectMixed,
+    BodySkeleton,
+    BodyJoined,
+    BodyDigitMap,
+    BodyMixed,
 }
 
 impl Tag {
     /// Every tag, in declaration order, so `ALL[tag as usize] == tag`.
-    const ALL: [Tag; 30] = [
+    const ALL: [Tag; 38] = [
         Tag::Bias,
         Tag::SubjectWord,
         Tag::SubjectPair,
@@ -163,6 +186,14 @@ impl Tag {
         Tag::SenderNone,
         Tag::Channel,
         Tag::Meta,
+        Tag::SubjectSkeleton,
+        Tag::SubjectJoined,
+        Tag::SubjectDigitMap,
+        Tag::SubjectMixed,
+        Tag::BodySkeleton,
+        Tag::BodyJoined,
+        Tag::BodyDigitMap,
+        Tag::BodyMixed,
     ];
 
     /// The hashed tag bytes. Part of the stable format.
@@ -198,6 +229,14 @@ impl Tag {
             Tag::SenderNone => "sender.none",
             Tag::Channel => "channel",
             Tag::Meta => "meta",
+            Tag::SubjectSkeleton => "subject.skeleton",
+            Tag::SubjectJoined => "subject.joined",
+            Tag::SubjectDigitMap => "subject.digitmap",
+            Tag::SubjectMixed => "subject.mixed",
+            Tag::BodySkeleton => "body.skeleton",
+            Tag::BodyJoined => "body.joined",
+            Tag::BodyDigitMap => "body.digitmap",
+            Tag::BodyMixed => "body.mixed",
         }
     }
 }
@@ -215,6 +254,10 @@ struct Field {
     length: Tag,
     upper: Tag,
     digits: Tag,
+    skeleton: Tag,
+    joined: Tag,
+    digit_map: Tag,
+    mixed: Tag,
 }
 
 const SUBJECT: Field = Field {
@@ -228,6 +271,10 @@ const SUBJECT: Field = Field {
     length: Tag::SubjectLength,
     upper: Tag::SubjectUpper,
     digits: Tag::SubjectDigits,
+    skeleton: Tag::SubjectSkeleton,
+    joined: Tag::SubjectJoined,
+    digit_map: Tag::SubjectDigitMap,
+    mixed: Tag::SubjectMixed,
 };
 
 const BODY: Field = Field {
@@ -241,6 +288,10 @@ const BODY: Field = Field {
     length: Tag::BodyLength,
     upper: Tag::BodyUpper,
     digits: Tag::BodyDigits,
+    skeleton: Tag::BodySkeleton,
+    joined: Tag::BodyJoined,
+    digit_map: Tag::BodyDigitMap,
+    mixed: Tag::BodyMixed,
 };
 
 /// One feature with its readable name, for explanations.
@@ -392,6 +443,10 @@ struct Buffers {
     field: String,
     /// The current word with n-gram markers.
     padded: String,
+    /// A word's confusable skeleton.
+    skeleton: String,
+    /// A word read from spelled-out letters or from digits.
+    respelled: String,
     /// Word and pair features of earlier words; see the `cache` module.
     cache: FeatureCache,
     sender: String,
@@ -544,11 +599,16 @@ impl Extractor {
             url_count: 0,
         };
         walk.add(Tag::Bias, &[], |name| name.push_str("bias"));
+        let mut scratch = WordScratch {
+            padded: &mut buffers.padded,
+            skeleton: &mut buffers.skeleton,
+            respelled: &mut buffers.respelled,
+        };
         if let Some(subject) = &msg.subject {
-            walk.text_field(SUBJECT, subject, &mut buffers.field, &mut buffers.padded);
+            walk.text_field(SUBJECT, subject, &mut buffers.field, &mut scratch);
         }
         if let Some(body) = &msg.body {
-            walk.text_field(BODY, body, &mut buffers.field, &mut buffers.padded);
+            walk.text_field(BODY, body, &mut buffers.field, &mut scratch);
         }
         let url_count = count_label(walk.url_count);
         walk.add(Tag::UrlCount, &[url_count.as_bytes()], |name| {
@@ -566,6 +626,22 @@ impl Extractor {
         }
         walk.meta(&msg.meta, &mut buffers.key, &mut buffers.value);
     }
+}
+
+/// Buffers for the features of one word.
+struct WordScratch<'b> {
+    padded: &'b mut String,
+    skeleton: &'b mut String,
+    respelled: &'b mut String,
+}
+
+/// How a respelled word was found.
+#[derive(Debug, Clone, Copy)]
+enum Respelling {
+    /// Spelled-out letters joined (`w i n` is `win`).
+    Joined,
+    /// Digits and signs read as letters (`fr33` is `free`).
+    DigitMapped,
 }
 
 /// State of one walk over one message.
@@ -589,7 +665,13 @@ impl<S: Sink> Walk<'_, S> {
         usize::try_from(self.settings.max_words_per_field).unwrap_or(usize::MAX)
     }
 
-    fn text_field(&mut self, field: Field, text: &str, buffer: &mut String, padded: &mut String) {
+    fn text_field(
+        &mut self,
+        field: Field,
+        text: &str,
+        buffer: &mut String,
+        scratch: &mut WordScratch<'_>,
+    ) {
         let stats = normalize_into(text, self.settings.max_run, buffer);
         let text = buffer.as_str();
         let field_name = field.name;
@@ -613,30 +695,51 @@ impl<S: Sink> Walk<'_, S> {
             });
         }
 
-        self.words(field, text, padded);
+        self.words(field, text, scratch);
+        if self.settings.digit_letters {
+            let cap = self.cap();
+            let skeleton = &mut *scratch.skeleton;
+            for_each_digit_word(text, cap, scratch.respelled, |word| {
+                self.respelled(field, Respelling::DigitMapped, word, skeleton);
+            });
+        }
         if self.settings.symbols || self.settings.number_shapes {
             self.marks(field, text);
         }
         self.urls(text);
     }
 
-    fn words(&mut self, field: Field, text: &str, padded: &mut String) {
+    fn words(&mut self, field: Field, text: &str, scratch: &mut WordScratch<'_>) {
         let field_name = field.name;
         let (settings, hashing) = (self.settings, self.hashing);
         if let Some(cache) = self.cache.as_deref_mut() {
             cache.start_field();
         }
+        let WordScratch {
+            padded, skeleton, ..
+        } = scratch;
         let mut previous: Option<(&str, Option<WordId>)> = None;
-        for_each_word(text, self.cap(), |_, word| {
+        let mut letter_run = LetterRun::default();
+        let mut mixed_words = 0usize;
+        for_each_word(text, self.cap(), |offset, word| {
+            if settings.mixed_script && is_mixed_script(word) {
+                mixed_words += 1;
+            }
+            if settings.joined_letters {
+                letter_run.word(text, offset, word, |letters| {
+                    self.respelled(field, Respelling::Joined, letters, skeleton);
+                });
+            }
             let id = match self.cache.as_deref_mut() {
                 Some(cache) => {
                     let found = cache.word(field.word as u8, word, |out| {
-                        word_and_ngrams(
+                        word_features(
                             settings,
                             hashing,
                             field,
                             word,
                             padded,
+                            skeleton,
                             &mut IndexSink(out),
                         );
                     });
@@ -646,7 +749,7 @@ impl<S: Sink> Walk<'_, S> {
                     found.id
                 }
                 None => {
-                    word_and_ngrams(settings, hashing, field, word, padded, self.sink);
+                    word_features(settings, hashing, field, word, padded, skeleton, self.sink);
                     None
                 }
             };
@@ -672,6 +775,37 @@ impl<S: Sink> Walk<'_, S> {
             }
             previous = Some((word, id));
         });
+        letter_run.finish(|letters| {
+            self.respelled(field, Respelling::Joined, letters, skeleton);
+        });
+        if mixed_words > 0 {
+            let count = count_label(mixed_words);
+            self.add(field.mixed, &[count.as_bytes()], |name| {
+                let _ = write!(name, "{field_name} mixed-script-words {count}");
+            });
+        }
+    }
+
+    /// The features of a word found by reading through a respelling: its
+    /// own kind, and its skeleton, where the plain spelling of the word
+    /// has its skeleton too.
+    fn respelled(&mut self, field: Field, how: Respelling, word: &str, skeleton: &mut String) {
+        let field_name = field.name;
+        match how {
+            Respelling::Joined => self.add(field.joined, &[word.as_bytes()], |name| {
+                let _ = write!(name, "{field_name} joined {word:?}");
+            }),
+            Respelling::DigitMapped => self.add(field.digit_map, &[word.as_bytes()], |name| {
+                let _ = write!(name, "{field_name} digit-mapped {word:?}");
+            }),
+        }
+        if self.settings.skeletons {
+            let skeleton = skeleton_of(word, skeleton);
+            let index = self.hashing.index(field.skeleton, &[skeleton.as_bytes()]);
+            self.sink.add(index, |name| {
+                let _ = write!(name, "{field_name} skeleton {skeleton:?}");
+            });
+        }
     }
 
     fn marks(&mut self, field: Field, text: &str) {
@@ -813,28 +947,41 @@ impl<S: Sink> Walk<'_, S> {
     }
 }
 
-/// The word feature and the word's n-grams, in this order. The feature
-/// cache stores what this gives, so it must depend on nothing but the
-/// settings, the key, the field and the word.
-fn word_and_ngrams<S: Sink>(
+/// The word feature, the word's n-grams and its skeleton, in this order.
+/// The feature cache stores what this gives, so it must depend on nothing
+/// but the settings, the key, the field and the word.
+fn word_features<S: Sink>(
     settings: &FeatureSettings,
     hashing: &Hashing,
     field: Field,
     word: &str,
     padded: &mut String,
+    skeleton: &mut String,
     sink: &mut S,
 ) {
     let field_name = field.name;
     sink.add(hashing.index(field.word, &[word.as_bytes()]), |name| {
         let _ = write!(name, "{field_name} word {word:?}");
     });
+    if !has_letter(word) {
+        return;
+    }
     let ngram = usize::from(settings.char_ngram);
-    if ngram > 0 && has_letter(word) {
+    if ngram > 0 {
         for_each_ngram(word, ngram, padded, |gram| {
             sink.add(hashing.index(field.ngram, &[gram.as_bytes()]), |name| {
                 let _ = write!(name, "{field_name} ngram {gram:?}");
             });
         });
+    }
+    if settings.skeletons {
+        let skeleton = skeleton_of(word, skeleton);
+        sink.add(
+            hashing.index(field.skeleton, &[skeleton.as_bytes()]),
+            |name| {
+                let _ = write!(name, "{field_name} skeleton {skeleton:?}");
+            },
+        );
     }
 }
 
@@ -1036,6 +1183,153 @@ mod tests {
         assert!(has(&named, "body word \"free\""), "{named:?}");
         assert!(has(&named, "body word \"money\""), "{named:?}");
         assert!(has(&named, "body word \"freee\""), "{named:?}");
+    }
+
+    /// The index of `name` in both messages, which must agree.
+    fn shared_index(plain: &Message, respelled: &Message, name: &str) -> u32 {
+        let index = index_of_name(plain, name);
+        assert_eq!(index_of_name(respelled, name), index, "{name}");
+        index
+    }
+
+    #[test]
+    fn confusable_letters_share_the_skeleton_of_the_plain_word() {
+        // U+0435 CYRILLIC SMALL LETTER IE -> U+0065 and U+043E CYRILLIC
+        // SMALL LETTER O -> U+006F (UTS #39, confusables.txt).
+        let plain = body("Please refund my order of glazed bowls");
+        let respelled = body("Please r\u{0435}fund my \u{043E}rder of glazed bowls");
+        shared_index(&plain, &respelled, "body skeleton \"refund\"");
+        shared_index(&plain, &respelled, "body skeleton \"order\"");
+        let named = names(&respelled);
+        // The words as written stay; the trick is also flagged.
+        assert!(has(&named, "body word \"r\u{0435}fund\""), "{named:?}");
+        assert!(!has(&named, "body word \"refund\""), "{named:?}");
+        assert!(has(&named, "body mixed-script-words 2-3"), "{named:?}");
+        let plain_names = names(&plain);
+        assert!(
+            !plain_names.iter().any(|name| name.contains("mixed-script")),
+            "{plain_names:?}"
+        );
+        // Skeletons are keys: U+006D m -> U+0072 U+006E "rn".
+        assert!(has(&names(&body("money")), "body skeleton \"rnoney\""));
+    }
+
+    #[test]
+    fn spelled_out_letters_share_the_skeleton_of_the_plain_word() {
+        let plain = Message {
+            subject: Some("You are a winner".into()),
+            body: Some("Claim your prize at the co-op stall".into()),
+            ..Message::default()
+        };
+        let respelled = Message {
+            subject: Some("You are a w.i.n.n.e.r".into()),
+            body: Some("Claim your p r i z e at the co-op stall".into()),
+            ..Message::default()
+        };
+        shared_index(&plain, &respelled, "subject skeleton \"winner\"");
+        shared_index(&plain, &respelled, "body skeleton \"prize\"");
+        let named = names(&respelled);
+        for name in [
+            "subject joined \"winner\"",
+            "body joined \"prize\"",
+            "body word \"p\"",
+            "body word \"z\"",
+            "subject word \"w.i.n.n.e.r\"",
+        ] {
+            assert!(has(&named, name), "{name} missing from {named:?}");
+        }
+        assert!(
+            !names(&plain).iter().any(|name| name.contains(" joined ")),
+            "plain text joins nothing"
+        );
+        // "a" before "w.i.n.n.e.r" is a letter too, but with another
+        // separator: the subject gives "winner", not "awinner".
+        let joined: Vec<&String> = named.iter().filter(|n| n.contains(" joined ")).collect();
+        assert_eq!(joined.len(), 2, "{joined:?}");
+        assert!(has(&named, "subject joined \"winner\""));
+    }
+
+    #[test]
+    fn digits_for_letters_share_the_skeleton_of_the_plain_word() {
+        let plain = body("free samples of hand-dyed wool, cash only");
+        let respelled = body("fr33 samples of hand-dyed wool, c@$h only");
+        shared_index(&plain, &respelled, "body skeleton \"free\"");
+        shared_index(&plain, &respelled, "body skeleton \"cash\"");
+        let named = names(&respelled);
+        for name in [
+            "body digit-mapped \"free\"",
+            "body digit-mapped \"cash\"",
+            "body word \"fr33\"",
+        ] {
+            assert!(has(&named, name), "{name} missing from {named:?}");
+        }
+        // A time or an ordinal is not a respelling.
+        let times = names(&body("open 10am on the 1st"));
+        assert!(
+            !times.iter().any(|name| name.contains("digit-mapped")),
+            "{times:?}"
+        );
+    }
+
+    #[test]
+    fn each_respelling_defence_has_its_own_switch() {
+        let msg = body("fr33 w i n p\u{0430}y");
+        let all = names(&msg);
+        for kind in [
+            " skeleton ",
+            " joined ",
+            " digit-mapped ",
+            " mixed-script-words ",
+        ] {
+            assert!(all.iter().any(|name| name.contains(kind)), "{kind} {all:?}");
+        }
+        let switched: [(&str, FeatureSettings); 4] = [
+            (
+                " skeleton ",
+                FeatureSettings {
+                    skeletons: false,
+                    ..FeatureSettings::default()
+                },
+            ),
+            (
+                " joined ",
+                FeatureSettings {
+                    joined_letters: false,
+                    ..FeatureSettings::default()
+                },
+            ),
+            (
+                " digit-mapped ",
+                FeatureSettings {
+                    digit_letters: false,
+                    ..FeatureSettings::default()
+                },
+            ),
+            (
+                " mixed-script-words ",
+                FeatureSettings {
+                    mixed_script: false,
+                    ..FeatureSettings::default()
+                },
+            ),
+        ];
+        for (kind, settings) in switched {
+            let named = names_with(settings, &msg);
+            assert!(
+                !named.iter().any(|name| name.contains(kind)),
+                "{kind} {named:?}"
+            );
+            // Only that kind goes: the words as written stay.
+            assert!(has(&named, "body word \"fr33\""), "{named:?}");
+            let others = all.iter().filter(|name| !name.contains(kind));
+            for name in others {
+                // Joined and digit-mapped words give skeletons, which go
+                // with them.
+                let is_theirs =
+                    name.contains(" skeleton ") && (kind == " joined " || kind == " digit-mapped ");
+                assert!(is_theirs || has(&named, name), "{kind}: {name} lost");
+            }
+        }
     }
 
     #[test]
@@ -1246,6 +1540,15 @@ mod tests {
         "\u{00A3}500",
         "supercalifragilisticexpialidocious",
         "abcdefghijklmnopqrstuvwxyz0123456789abcdefghijklmnopqrstuvwxyz0123456789",
+        // Respellings: spelled-out letters, stand-ins, look-alikes.
+        "w",
+        "i",
+        "n",
+        "w.i.n",
+        "fr33",
+        "c@$h",
+        "p\u{0430}y",
+        "-",
     ];
 
     /// A message from word numbers: the subject takes the first few.
@@ -1469,6 +1772,23 @@ mod tests {
         for (name, expected) in golden {
             assert_eq!(index_of_name(&msg, name), expected, "{name}");
         }
+        // The respelling kinds, added later under the same version (their
+        // settings say whether a model has them). U+0430 CYRILLIC SMALL
+        // LETTER A has the skeleton U+0061 (UTS #39, confusables.txt).
+        let respelled = body("fr33 w i n p\u{0430}y");
+        let golden = [
+            ("body skeleton \"pay\"", GOLDEN_BODY_SKELETON_PAY),
+            ("body joined \"win\"", GOLDEN_BODY_JOINED_WIN),
+            ("body digit-mapped \"free\"", GOLDEN_BODY_DIGITMAP_FREE),
+            ("body mixed-script-words 1", GOLDEN_BODY_MIXED_ONE),
+        ];
+        for (name, expected) in golden {
+            assert_eq!(index_of_name(&respelled, name), expected, "{name}");
+        }
+        assert_eq!(
+            index_of_name(&msg, "subject skeleton \"offer\""),
+            GOLDEN_SUBJECT_SKELETON_OFFER
+        );
     }
 
     const GOLDEN_BIAS: u32 = 103864;
@@ -1478,6 +1798,11 @@ mod tests {
     const GOLDEN_BODY_POUND: u32 = 601868;
     const GOLDEN_SENDER_DOMAIN: u32 = 3429896;
     const GOLDEN_META_REPLY: u32 = 510418;
+    const GOLDEN_SUBJECT_SKELETON_OFFER: u32 = 3829675;
+    const GOLDEN_BODY_SKELETON_PAY: u32 = 2368714;
+    const GOLDEN_BODY_JOINED_WIN: u32 = 3330577;
+    const GOLDEN_BODY_DIGITMAP_FREE: u32 = 750297;
+    const GOLDEN_BODY_MIXED_ONE: u32 = 2772747;
 
     #[test]
     fn try_new_refuses_bad_settings_and_new_clamps_them() {

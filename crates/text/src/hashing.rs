@@ -28,6 +28,12 @@
 //! one call over the payload alone; most features cost a single
 //! finalisation.
 //!
+//! Tags are only ever added. The respelling kinds (`<f>.skeleton`,
+//! `<f>.joined`, `<f>.digitmap`, `<f>.mixed`, see [`crate::extract`]) came
+//! after the others under the same rule; a model's feature settings say
+//! whether they are extracted at all, and the features that existed before
+//! them kept their bytes.
+//!
 //! What must stay true: these bytes never change. Saved models are only
 //! meaningful under the byte layout, key and `bits` they were trained with;
 //! the golden test in [`crate::extract`] fails loudly if the layout drifts.

@@ -21,6 +21,7 @@ pub mod extract;
 pub mod hashing;
 mod message;
 pub mod normalize;
+mod obfuscation;
 mod sender;
 mod settings;
 mod sort;

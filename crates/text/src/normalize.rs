@@ -25,10 +25,14 @@
 //!
 //! ASCII text skips steps 1 and 2 (ASCII holds no invisible characters and
 //! NFKC is the identity on it); most traffic takes this path. Other text is
-//! checked with the NFKC quick check first and only recomposed when needed.
+//! checked with the NFKC quick check first and only recomposed when needed;
+//! when it need not be, its ASCII runs are folded in bulk, as pure ASCII
+//! text is.
 
 use unicode_normalization::{IsNormalized, UnicodeNormalization, is_nfkc_quick};
 use unicode_properties::{GeneralCategory, UnicodeGeneralCategory};
+
+use crate::ascii::for_each_run;
 
 /// Counts over one normalised text, taken before case folding and run
 /// collapse.
@@ -94,13 +98,39 @@ pub fn normalize_into(text: &str, max_run: u8, out: &mut String) -> TextStats {
         run: 0,
         stats: TextStats::default(),
     };
-    let visible = || text.chars().filter(|&c| !is_invisible(c));
-    if is_nfkc_quick(visible()) == IsNormalized::Yes {
-        visible().for_each(|c| sink.push(c));
+    if is_visible_text_nfkc(text) {
+        // Nothing to recompose: the ASCII runs go through in bulk.
+        for_each_run(text, |_, run, is_ascii| {
+            if is_ascii {
+                sink.push_ascii(run);
+            } else {
+                run.chars()
+                    .filter(|&c| !is_invisible(c))
+                    .for_each(|c| sink.push(c));
+            }
+        });
     } else {
-        visible().nfkc().for_each(|c| sink.push(c));
+        text.chars()
+            .filter(|&c| !is_invisible(c))
+            .nfkc()
+            .for_each(|c| sink.push(c));
     }
     sink.stats
+}
+
+/// The NFKC quick check (UAX #15 section 9) of `text` without its invisible
+/// characters says it is NFKC already. ASCII characters pass the check and
+/// have canonical combining class 0, so no ordering constraint reaches
+/// across them: checking each non-ASCII run alone gives the same answer.
+fn is_visible_text_nfkc(text: &str) -> bool {
+    let mut is_nfkc = true;
+    for_each_run(text, |_, run, is_ascii| {
+        if !is_ascii && is_nfkc {
+            let visible = run.chars().filter(|&c| !is_invisible(c));
+            is_nfkc = is_nfkc_quick(visible) == IsNormalized::Yes;
+        }
+    });
+    is_nfkc
 }
 
 /// Counts of ASCII text. Written so that the compiler can vectorise it:
@@ -224,6 +254,41 @@ impl Folder<'_> {
         self.stats.non_space += usize::from(!c.is_whitespace());
         for lower in c.to_lowercase() {
             self.put(lower);
+        }
+    }
+
+    /// [`Folder::push`] for each character of an ASCII run, in bulk where
+    /// that gives the same: the run is counted, copied and lowercased at
+    /// once unless it continues the last character's run or may hold a run
+    /// to collapse (see [`normalize_ascii`]).
+    fn push_ascii(&mut self, run: &str) {
+        let bytes = run.as_bytes();
+        let Some(&first) = bytes.first() else {
+            return;
+        };
+        let counts = count_ascii(bytes);
+        self.stats.chars += counts.chars;
+        self.stats.uppercase += counts.uppercase;
+        self.stats.lowercase += counts.lowercase;
+        self.stats.digits += counts.digits;
+        self.stats.non_space += counts.non_space;
+        let start = self.out.len();
+        let continues_run = self.last == Some(char::from(first.to_ascii_lowercase()));
+        if !continues_run {
+            self.out.push_str(run);
+            self.out[start..].make_ascii_lowercase();
+            let folded = &self.out.as_bytes()[start..];
+            if !may_have_long_run(folded, self.max_run) || !has_long_run(bytes, self.max_run) {
+                let last = folded[folded.len() - 1];
+                let trailing = folded.iter().rev().take_while(|&&b| b == last).count();
+                self.last = Some(char::from(last));
+                self.run = trailing;
+                return;
+            }
+            self.out.truncate(start);
+        }
+        for &byte in bytes {
+            self.put(char::from(byte.to_ascii_lowercase()));
         }
     }
 
@@ -419,6 +484,35 @@ mod tests {
             let mut fast = String::new();
             let stats = normalize_into(&text, max_run, &mut fast);
             proptest::prop_assert_eq!((fast, stats), fold_by_characters(&text, max_run));
+        }
+    }
+
+    /// The definition of the general path: visible characters, NFKC if the
+    /// quick check asks for it, then folding one character at a time.
+    fn reference(text: &str, max_run: u8) -> (String, TextStats) {
+        let visible: String = text.chars().filter(|&c| !is_invisible(c)).collect();
+        let composed: String = if is_nfkc_quick(visible.chars()) == IsNormalized::Yes {
+            visible
+        } else {
+            visible.nfkc().collect()
+        };
+        fold_by_characters(&composed, max_run)
+    }
+
+    proptest::proptest! {
+        #[test]
+        fn mixed_text_equals_folding_by_characters(
+            pieces in proptest::collection::vec(proptest::sample::select(&[
+                "a", "A", "aaaa", "e", "EEE", "0000", "!", " ", "\t", "\n", "i", "ii",
+                "\u{00E9}", "\u{00C9}", "\u{0301}", "\u{0130}", "\u{200B}", "\u{00AD}", "\u{FB01}",
+                "\u{FF26}", "\u{212A}", "\u{00A3}", "\u{03A3}", "\u{1F381}", "\u{0661}", "\u{00A0}",
+            ][..]), 0..40),
+            max_run in 1u8..=4,
+        ) {
+            let text = pieces.concat();
+            let mut fast = String::new();
+            let stats = normalize_into(&text, max_run, &mut fast);
+            proptest::prop_assert_eq!((fast, stats), reference(&text, max_run));
         }
     }
 

@@ -30,6 +30,21 @@ pub struct FeatureSettings {
     pub symbols: bool,
     /// Whether the digit-count shape of numbers is a feature.
     pub number_shapes: bool,
+    /// Whether each word with a letter also gives its confusable skeleton
+    /// (UTS #39 section 4), so that look-alike spellings such as `pаrcel`
+    /// with a Cyrillic `а` share a feature with `parcel`. Joined and
+    /// digit-mapped words give their skeleton too, which is where they meet
+    /// the plain spelling.
+    pub skeletons: bool,
+    /// Whether three or more single letters in a row (`w i n n e r`,
+    /// `w.i.n`, `w-i-n`) give the word they spell as a feature.
+    pub joined_letters: bool,
+    /// Whether tokens that mix letters with digits or `@ $ ! |` standing in
+    /// for letters (`fr33`, `p@rcel`) give their letter reading as a feature.
+    pub digit_letters: bool,
+    /// Whether the number of words that mix scripts (Latin with Cyrillic
+    /// letters, say) is a feature of each field.
+    pub mixed_script: bool,
 }
 
 impl Default for FeatureSettings {
@@ -42,6 +57,10 @@ impl Default for FeatureSettings {
             max_words_per_field: 5000,
             symbols: true,
             number_shapes: true,
+            skeletons: true,
+            joined_letters: true,
+            digit_letters: true,
+            mixed_script: true,
         }
     }
 }
@@ -64,7 +83,9 @@ pub const MIN_BITS: u8 = 8;
 pub const MAX_BITS: u8 = 30;
 
 impl FeatureSettings {
-    /// Checks every setting and returns all problems found.
+    /// Checks every setting and returns all problems found. The switches
+    /// (`word_pairs`, `symbols`, `skeletons`, ...) are plain booleans: every
+    /// value is valid, and each may be set without the others.
     pub fn validate(&self) -> Result<(), Vec<SettingsProblem>> {
         let mut problems = Vec::new();
         if !(MIN_BITS..=MAX_BITS).contains(&self.bits) {
@@ -131,6 +152,8 @@ mod tests {
         assert!(settings.word_pairs);
         assert_eq!(settings.max_run, 3);
         assert_eq!(settings.max_words_per_field, 5000);
+        assert!(settings.skeletons && settings.joined_letters);
+        assert!(settings.digit_letters && settings.mixed_script);
     }
 
     #[test]
@@ -203,6 +226,21 @@ mod tests {
             FeatureSettings::default().clamped(),
             FeatureSettings::default()
         );
+    }
+
+    #[test]
+    fn respelling_switches_default_on_and_can_be_turned_off() {
+        // Settings saved before these switches existed read them as on.
+        let settings: FeatureSettings =
+            serde_json::from_str(r#"{"bits": 22, "symbols": true}"#).unwrap();
+        assert!(settings.skeletons && settings.joined_letters);
+        assert!(settings.digit_letters && settings.mixed_script);
+        let off: FeatureSettings = serde_json::from_str(
+            r#"{"skeletons": false, "joined_letters": false, "digit_letters": false, "mixed_script": false}"#,
+        )
+        .unwrap();
+        assert_eq!(off.validate(), Ok(()));
+        assert!(!(off.skeletons || off.joined_letters || off.digit_letters || off.mixed_script));
     }
 
     #[test]

@@ -47,32 +47,49 @@ pub(crate) fn for_each_word<'a>(text: &'a str, cap: usize, mut f: impl FnMut(usi
         return;
     }
     let bytes = text.as_bytes();
+    // A cut point: an ASCII character other than whitespace right after
+    // ASCII whitespace (the vertical tab included, as UAX #29 has it).
+    let is_space = |byte: u8| byte.is_ascii_whitespace() || byte == 0x0B;
+    let is_cut = |i: usize| is_space(bytes[i - 1]) && bytes[i].is_ascii() && !is_space(bytes[i]);
     let mut left = cap;
-    let mut chunk_start = 0;
-    for i in 1..=bytes.len() {
-        let is_cut = i == bytes.len()
-            || (bytes[i - 1].is_ascii_whitespace() || bytes[i - 1] == 0x0B)
-                && bytes[i].is_ascii()
-                && !(bytes[i].is_ascii_whitespace() || bytes[i] == 0x0B);
-        if !is_cut {
-            continue;
-        }
-        let chunk = &text[chunk_start..i];
+    let mut emit = |chunk_start: usize, chunk: &'a str, left: &mut usize| {
         if chunk.is_ascii() {
-            for (offset, word) in AsciiWords::new(chunk).take(left) {
+            for (offset, word) in AsciiWords::new(chunk).take(*left) {
                 f(chunk_start + offset, word);
-                left -= 1;
+                *left -= 1;
             }
         } else {
-            for (offset, word) in chunk.unicode_word_indices().take(left) {
+            for (offset, word) in chunk.unicode_word_indices().take(*left) {
                 f(chunk_start + offset, word);
-                left -= 1;
+                *left -= 1;
             }
         }
-        if left == 0 {
+    };
+    // Chunks between cut points are whole runs of words; consecutive ASCII
+    // chunks are taken together, and each stretch holding other characters
+    // goes from the cut before its first such character to the cut after.
+    let mut start = 0;
+    while start < bytes.len() && left > 0 {
+        let Some(non_ascii) = bytes[start..]
+            .iter()
+            .position(|byte| !byte.is_ascii())
+            .map(|offset| start + offset)
+        else {
+            emit(start, &text[start..], &mut left);
             return;
+        };
+        if let Some(cut) = (start + 1..non_ascii).rev().find(|&i| is_cut(i)) {
+            emit(start, &text[start..cut], &mut left);
+            start = cut;
+            if left == 0 {
+                return;
+            }
         }
-        chunk_start = i;
+        let end = (non_ascii + 1..bytes.len())
+            .find(|&i| is_cut(i))
+            .unwrap_or(bytes.len());
+        emit(start, &text[start..end], &mut left);
+        start = end;
     }
 }
 
@@ -272,12 +289,24 @@ pub(crate) fn scan_marks<'a>(text: &'a str, mut f: impl FnMut(Mark<'a>)) {
             scan.step(byte == b'!', byte.is_ascii_digit(), byte, symbol, &mut f);
         }
     } else {
-        for (offset, c) in text.char_indices() {
-            let symbol = is_symbol(c).then(|| &text[offset..offset + c.len_utf8()]);
-            // Separators are ASCII, so non-ASCII characters pass as 0.
-            let ascii = if c.is_ascii() { c as u8 } else { 0 };
-            scan.step(c == '!', is_decimal_digit(c), ascii, symbol, &mut f);
-        }
+        // Same steps, the ASCII runs byte by byte.
+        ascii::for_each_run(text, |_, run, is_ascii| {
+            if is_ascii {
+                for (offset, &byte) in run.as_bytes().iter().enumerate() {
+                    if scan.is_idle() && !ascii::is(byte, ascii::MARK) {
+                        continue;
+                    }
+                    let symbol = ascii::is(byte, ascii::SYMBOL).then(|| &run[offset..=offset]);
+                    scan.step(byte == b'!', byte.is_ascii_digit(), byte, symbol, &mut f);
+                }
+                return;
+            }
+            for (offset, c) in run.char_indices() {
+                let symbol = is_symbol(c).then(|| &run[offset..offset + c.len_utf8()]);
+                // Separators are ASCII, so non-ASCII characters pass as 0.
+                scan.step(c == '!', is_decimal_digit(c), 0, symbol, &mut f);
+            }
+        });
     }
     scan.finish(&mut f);
 }

@@ -55,6 +55,16 @@ const INTERESTING: &[char] = &[
     's',
     '\u{65E5}',
     '\u{0000}',
+    // Look-alikes and stand-ins for the respelling features: U+0430
+    // CYRILLIC SMALL LETTER A, U+043E CYRILLIC SMALL LETTER O, U+03BF
+    // GREEK SMALL LETTER OMICRON.
+    '\u{0430}',
+    '\u{043E}',
+    '\u{03BF}',
+    '3',
+    '1',
+    '_',
+    'm',
 ];
 
 fn text() -> impl Strategy<Value = String> {
@@ -107,6 +117,7 @@ fn settings() -> impl Strategy<Value = FeatureSettings> {
         1u32..50,
         any::<bool>(),
         any::<bool>(),
+        any::<[bool; 4]>(),
     )
         .prop_map(
             |(
@@ -117,6 +128,7 @@ fn settings() -> impl Strategy<Value = FeatureSettings> {
                 max_words_per_field,
                 symbols,
                 number_shapes,
+                [skeletons, joined_letters, digit_letters, mixed_script],
             )| FeatureSettings {
                 bits,
                 char_ngram,
@@ -125,6 +137,10 @@ fn settings() -> impl Strategy<Value = FeatureSettings> {
                 max_words_per_field,
                 symbols,
                 number_shapes,
+                skeletons,
+                joined_letters,
+                digit_letters,
+                mixed_script,
             },
         )
 }
@@ -169,6 +185,7 @@ proptest! {
         words in prop::collection::vec(prop::sample::select(&[
             "the", "The", "offer", "free", "entry", "\u{00E9}t\u{00E9}", "2024", "win!!", "a", "prize.example.com/x",
             "snake_case", "don't", "\u{65E5}\u{672C}", "x", "aaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaaa",
+            "fr33", "w", "w.i.n", "p\u{0430}y", "c@$h", "-", ".",
         ][..]), 40..400),
         char_ngram in prop_oneof![Just(0u8), 2u8..=8],
     ) {
@@ -189,7 +206,7 @@ proptest! {
             prop::collection::vec(prop::sample::select(&[
                 "the", "The", "offer", "free", "entry", "\u{00E9}t\u{00E9}", "2024", "win!!", "a",
                 "prize.example.com/x", "snake_case", "don't", "\u{65E5}\u{672C}", "x",
-                "supercalifragilisticexpialidocious",
+                "supercalifragilisticexpialidocious", "fr33", "w", "w.i.n", "p\u{0430}y", "c@$h",
             ][..]), 0..200),
             1..8,
         ),

@@ -81,6 +81,12 @@ GOLDEN = [
     ("GOLDEN_BODY_POUND", index("body.symbol", "\u00a3".encode())),
     ("GOLDEN_SENDER_DOMAIN", index("sender.domain", b"b.example")),
     ("GOLDEN_META_REPLY", index("meta", b"is_reply", b"bool", b"false")),
+    # The respelling kinds, added later under the same format version.
+    ("GOLDEN_SUBJECT_SKELETON_OFFER", index("subject.skeleton", b"offer")),
+    ("GOLDEN_BODY_SKELETON_PAY", index("body.skeleton", b"pay")),
+    ("GOLDEN_BODY_JOINED_WIN", index("body.joined", b"win")),
+    ("GOLDEN_BODY_DIGITMAP_FREE", index("body.digitmap", b"free")),
+    ("GOLDEN_BODY_MIXED_ONE", index("body.mixed", b"1")),
 ]
 
 for name, value in GOLDEN:
