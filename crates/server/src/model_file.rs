@@ -37,12 +37,35 @@ pub enum ModelFileError {
     Inconsistent { path: PathBuf, what: String },
 }
 
+/// Feature kinds added after the first model files were written. A file
+/// that does not name one was trained without it, so it stays off: turning
+/// it on would add features its weights never saw.
+const LATER_FEATURE_SWITCHES: [&str; 4] = [
+    "skeletons",
+    "joined_letters",
+    "digit_letters",
+    "mixed_script",
+];
+
+/// The feature settings recorded in a model file.
+fn settings_from_json(text: &str) -> Result<FeatureSettings, serde_json::Error> {
+    let mut value: serde_json::Value = serde_json::from_str(text)?;
+    if let Some(fields) = value.as_object_mut() {
+        for switch in LATER_FEATURE_SWITCHES {
+            fields
+                .entry(switch)
+                .or_insert(serde_json::Value::Bool(false));
+        }
+    }
+    serde_json::from_value(value)
+}
+
 /// Reads a checkpoint and checks that its settings and key belong to its
 /// weights.
 pub fn load_model_file(path: &Path) -> Result<LoadedModel, ModelFileError> {
     let (model, header) = read_checkpoint(path)?;
-    let settings: FeatureSettings =
-        serde_json::from_str(&header.extractor).map_err(|err| ModelFileError::Settings {
+    let settings =
+        settings_from_json(&header.extractor).map_err(|err| ModelFileError::Settings {
             path: path.to_owned(),
             problem: err.to_string(),
         })?;
@@ -126,5 +149,22 @@ mod tests {
         assert_eq!(loaded.settings, settings);
         assert_eq!(loaded.key.key_id(), key.key_id());
         assert_eq!(loaded.last_seq, 42);
+    }
+
+    #[test]
+    fn files_from_before_the_respelling_features_keep_them_off() {
+        let mut old = serde_json::to_value(FeatureSettings::default()).unwrap();
+        for switch in LATER_FEATURE_SWITCHES {
+            assert!(old.as_object_mut().unwrap().remove(switch).is_some());
+        }
+        let settings = settings_from_json(&old.to_string()).unwrap();
+        assert!(!settings.skeletons && !settings.joined_letters);
+        assert!(!settings.digit_letters && !settings.mixed_script);
+        // A file that names them keeps what it says.
+        let now = serde_json::to_string(&FeatureSettings::default()).unwrap();
+        assert_eq!(
+            settings_from_json(&now).unwrap(),
+            FeatureSettings::default()
+        );
     }
 }
