@@ -1,4 +1,4 @@
-//! The review page end to end: the real server, and Debian's `chromium`
+//! The review and drift report pages end to end: the real server, and Debian's `chromium`
 //! driven through `chromedriver` over the W3C WebDriver protocol.
 //!
 //! Without `/usr/bin/chromedriver` the browser tests print why and pass,
@@ -620,5 +620,138 @@ fn the_shell_is_public_and_holds_no_data_while_the_queue_needs_moderate() {
         let (status, answer) = server.get_with(&moderator, bad);
         assert_eq!(status, 400, "{bad}: {answer}");
     }
+    assert!(server.stop());
+}
+
+/// Marks of one kind in the report fragment.
+fn marks(browser: &Browser<'_>, css: &str) -> u64 {
+    let script = format!("return document.querySelectorAll('#cg-content {css}').length;");
+    browser
+        .execute(&script)
+        .as_u64()
+        .unwrap_or_else(|| panic!("no count for {css}"))
+}
+
+#[test]
+fn an_operator_reads_the_drift_report_of_a_shifted_stream() {
+    let Some(driver) = Driver::start() else {
+        return;
+    };
+    let dir = tempfile::tempdir().unwrap();
+    let operator = add_token(dir.path(), "operate", "ops");
+    let server = TestServer::start_in(dir.path(), &crate::drift::TALLY_ENV);
+    let query = crate::drift::two_halves(
+        &server,
+        Some(&operator),
+        &crate::drift::mail_with_parcel_notices(2000, 300),
+    );
+    // What the page must draw, from the JSON form of the same report.
+    let (status, report) = server.get_with(&operator, &format!("/v1/reports/drift?{query}"));
+    assert_eq!(status, 200, "{report}");
+    let bins = report["settings"]["psi_bin_edges"]
+        .as_array()
+        .unwrap()
+        .len()
+        - 1;
+    let overall = &report["overall"];
+    let windows = ["baseline", "current"];
+    let buckets: usize = windows
+        .iter()
+        .map(|w| overall["scores"][w]["over_time"].as_array().unwrap().len())
+        .sum();
+    let filled_bins: usize = windows
+        .iter()
+        .map(|w| {
+            overall["quality"][w]["calibration"]["bins"]
+                .as_array()
+                .map_or(0, |bins| bins.iter().filter(|b| b["count"] != 0).count())
+        })
+        .sum();
+    let labelled_buckets: usize = windows
+        .iter()
+        .map(|w| {
+            overall["quality"][w]["over_time"]
+                .as_array()
+                .unwrap()
+                .iter()
+                .filter(|b| b["labelled"] != 0)
+                .count()
+        })
+        .sum();
+    let features = &report["features"];
+    let feature_rows = features["rising"].as_array().unwrap().len()
+        + features["falling"].as_array().unwrap().len();
+    assert!(filled_bins > 0 && labelled_buckets > 0 && feature_rows > 0);
+
+    let browser = Browser::new(&driver);
+    browser.navigate(&format!("{}/reports?{query}", server.base));
+    browser.wait_for(
+        "the sign-in form",
+        "return !document.getElementById('cg-login').hidden;",
+    );
+    assert_eq!(
+        browser.text("return document.title;"),
+        "Drift report · chaffgate"
+    );
+    let caution = browser.text("return document.querySelector('.cg-caution').textContent;");
+    assert!(
+        caution.contains("can hide legitimate messages") && caution.contains("local law"),
+        "{caution}"
+    );
+    browser.send_keys(&browser.find("#cg-token"), &operator);
+    browser.click(&browser.find("#cg-login button[type=submit]"));
+    browser.wait_for(
+        "the report",
+        "return document.getElementById('rp-title') !== null;",
+    );
+
+    assert_eq!(marks(&browser, "svg.rp-svg"), 5);
+    assert_eq!(marks(&browser, "rect.bar"), (2 * bins) as u64);
+    assert_eq!(
+        marks(&browser, "rect.bar[data-window=current]"),
+        bins as u64
+    );
+    assert_eq!(marks(&browser, "g.mix-bar"), buckets as u64);
+    assert_eq!(
+        marks(&browser, "circle.reliability-point"),
+        filled_bins as u64
+    );
+    assert_eq!(
+        marks(&browser, "circle.overturn-point"),
+        labelled_buckets as u64
+    );
+    assert_eq!(marks(&browser, "rect.feature-bar"), feature_rows as u64);
+    // The parcel notices raised the overturn alarm in the current window.
+    assert!(marks(&browser, "tr.alarm-row[data-detector=feedback_errors]") >= 1);
+    assert_eq!(
+        marks(&browser, "tr.alarm-row"),
+        report["alarms"].as_array().unwrap().len() as u64
+    );
+    // The charts are drawn: the tallest histogram bar has a height.
+    let tallest = browser.execute(
+        "return Math.max(...Array.from(document.querySelectorAll('rect.bar')).map(r => r.getBBox().height));",
+    );
+    assert!(tallest.as_f64().unwrap_or(0.0) > 10.0, "{tallest}");
+
+    // The form reloads the report for one channel, here one without
+    // decisions: every chart says so instead.
+    browser.send_keys(&browser.find("#rp-channel"), "parcels");
+    browser.click(&browser.find(".rp-filters button[type=submit]"));
+    browser.wait_for(
+        "the channel's report",
+        "return document.getElementById('rp-title') !== null \
+         && document.getElementById('rp-title').textContent.includes('channel parcels');",
+    );
+    assert!(
+        browser
+            .text("return window.location.search;")
+            .contains("channel=parcels")
+    );
+    assert_eq!(marks(&browser, "svg.rp-svg"), 0);
+    assert!(marks(&browser, ".rp-nodata") >= 4);
+
+    let log = browser.browser_log();
+    assert!(severe(&log).is_empty(), "console errors: {log:?}");
+    browser.close();
     assert!(server.stop());
 }

@@ -10,7 +10,9 @@
 //!
 //! Decisions get the server's own time, so the windows are a few seconds:
 //! the first half is the baseline, a pause, then the second half is the
-//! current window, and `at` is just after it.
+//! current window, and `at` is just after it. Feature tallies count every
+//! message in buckets of one second, so that each half's tallies fall in
+//! its own window.
 
 use std::time::{Duration, SystemTime, UNIX_EPOCH};
 
@@ -110,15 +112,39 @@ fn parcel_notice(n: usize) -> Value {
     })
 }
 
+/// Settings for the streams: every message tallied, one-second tally
+/// buckets written every second.
+pub(crate) const TALLY_ENV: [(&str, &str); 3] = [
+    ("CHAFFGATE_TALLY_SAMPLE_EVERY", "1"),
+    ("CHAFFGATE_TALLY_FLUSH_EVERY_SECS", "1"),
+    ("CHAFFGATE_TALLY_BUCKET_SECS", "1"),
+];
+
+/// POST as `token`, or without one in open mode.
+fn post(server: &TestServer, token: Option<&str>, path: &str, body: &str) -> (u16, Value) {
+    match token {
+        Some(token) => server.post_with(token, path, body),
+        None => server.post(path, body),
+    }
+}
+
+/// GET as `token`, or without one in open mode.
+fn get(server: &TestServer, token: Option<&str>, path: &str) -> (u16, Value) {
+    match token {
+        Some(token) => server.get_with(token, path),
+        None => server.get(path),
+    }
+}
+
 fn now_ms() -> i64 {
     let since = SystemTime::now().duration_since(UNIX_EPOCH).unwrap();
     i64::try_from(since.as_millis()).unwrap()
 }
 
 /// Waits until the model includes every committed feedback row.
-fn wait_learnt(server: &TestServer) {
+fn wait_learnt(server: &TestServer, token: Option<&str>) {
     for _ in 0..1000 {
-        let (status, model) = server.get("/v1/model");
+        let (status, model) = get(server, token, "/v1/model");
         assert_eq!(status, 200, "{model}");
         if model["learner_lag_rows"] == 0 {
             return;
@@ -130,7 +156,7 @@ fn wait_learnt(server: &TestServer) {
 
 /// Teaches the model the shop's usual mail with inline feedback (no
 /// decisions, so the windows hold only the two halves).
-fn warm_up(server: &TestServer) {
+fn warm_up(server: &TestServer, token: Option<&str>) {
     for n in 0..240 {
         let (message, label) = if n % 3 == 0 {
             (known_junk(n), "junk")
@@ -138,30 +164,30 @@ fn warm_up(server: &TestServer) {
             (customer(n), "fine")
         };
         let body = json!({"message": message, "label": label, "moderator": "ana"});
-        let (status, answer) = server.post("/v1/feedback", &body.to_string());
+        let (status, answer) = post(server, token, "/v1/feedback", &body.to_string());
         assert_eq!(status, 201, "{answer}");
     }
-    wait_learnt(server);
+    wait_learnt(server, token);
 }
 
 /// Scores every message, then gives each decision its true label.
-fn stream(server: &TestServer, messages: &[(Value, &str)]) {
+fn stream(server: &TestServer, token: Option<&str>, messages: &[(Value, &str)]) {
     let mut decided = Vec::new();
     for (message, label) in messages {
-        let (status, answer) = server.post("/v1/score", &message.to_string());
+        let (status, answer) = post(server, token, "/v1/score", &message.to_string());
         assert_eq!(status, 200, "{answer}");
         decided.push((answer["decision_id"].as_str().unwrap().to_owned(), *label));
     }
     for (n, (id, label)) in decided.iter().enumerate() {
         let moderator = ["ana", "ben"][n % 2];
         let body = json!({"decision_id": id, "label": label, "moderator": moderator});
-        let (status, answer) = server.post("/v1/feedback", &body.to_string());
+        let (status, answer) = post(server, token, "/v1/feedback", &body.to_string());
         assert_eq!(status, 201, "{answer}");
     }
 }
 
 /// The first half: 70% customers, 30% known junk.
-fn usual_mail(from: usize, count: usize) -> Vec<(Value, &'static str)> {
+pub(crate) fn usual_mail(from: usize, count: usize) -> Vec<(Value, &'static str)> {
     (from..from + count)
         .map(|n| {
             if n % 10 < 3 {
@@ -175,7 +201,7 @@ fn usual_mail(from: usize, count: usize) -> Vec<(Value, &'static str)> {
 
 /// The second half with the new junk: 40% customers, 20% known junk, 40%
 /// parcel notices.
-fn mail_with_parcel_notices(from: usize, count: usize) -> Vec<(Value, &'static str)> {
+pub(crate) fn mail_with_parcel_notices(from: usize, count: usize) -> Vec<(Value, &'static str)> {
     (from..from + count)
         .map(|n| match n % 5 {
             0 | 1 => (customer(n), "fine"),
@@ -185,20 +211,32 @@ fn mail_with_parcel_notices(from: usize, count: usize) -> Vec<(Value, &'static s
         .collect()
 }
 
-/// Runs the two halves and returns the report's query string: windows of
-/// whole seconds that split exactly between the halves, ending just after
-/// the second.
-fn two_halves(server: &TestServer, second: &[(Value, &str)]) -> String {
-    warm_up(server);
-    stream(server, &usual_mail(1000, 300));
-    wait_learnt(server);
+/// Runs the two halves (as `token`, or in open mode) and returns the
+/// report's query string: windows of whole seconds that split exactly
+/// between the halves, ending just after the second. Start the server with
+/// [`TALLY_ENV`] for the feature tallies to split the same way.
+pub(crate) fn two_halves(
+    server: &TestServer,
+    token: Option<&str>,
+    second: &[(Value, &str)],
+) -> String {
+    warm_up(server, token);
+    stream(server, token, &usual_mail(1000, 300));
+    wait_learnt(server, token);
     // The pause that separates the windows: longer than the one second the
-    // current window's length is rounded up by.
+    // current window's length is rounded up by. The second half starts on
+    // a whole second, so that its first tally bucket does not start
+    // before the current window.
     std::thread::sleep(Duration::from_millis(1500));
-    let second_start = now_ms();
-    stream(server, second);
+    let second_start = (now_ms() / 1000 + 1) * 1000;
+    while now_ms() < second_start {
+        std::thread::sleep(Duration::from_millis(5));
+    }
+    stream(server, token, second);
     let at = now_ms() + 1;
     let current_secs = (at - second_start + 999) / 1000;
+    // Two flush periods: the last tallies reach the database.
+    std::thread::sleep(Duration::from_millis(2500));
     format!("baseline=1h&current={current_secs}s&at={at}")
 }
 
@@ -217,8 +255,8 @@ fn rate(window: &Value, key: &str) -> f64 {
 #[test]
 fn new_junk_the_model_misses_shows_as_drift_with_an_alarm() {
     let dir = tempfile::tempdir().unwrap();
-    let server = TestServer::start_in(dir.path(), &[]);
-    let query = two_halves(&server, &mail_with_parcel_notices(2000, 300));
+    let server = TestServer::start_in(dir.path(), &TALLY_ENV);
+    let query = two_halves(&server, None, &mail_with_parcel_notices(2000, 300));
     let report = report(&server, &query);
     let overall = &report["overall"];
     let psi = overall["scores"]["psi"].as_f64().unwrap();
@@ -242,7 +280,27 @@ fn new_junk_the_model_misses_shows_as_drift_with_an_alarm() {
                 && alarm["channel"].is_null()),
         "{alarms:?}"
     );
-    assert_eq!(report["features"], Value::Null);
+    // Every message is tallied: 300 a window. Two in five of the current
+    // window are parcel notices, whose words the baseline never had: a
+    // rise in share of 120/300 = 0.4, the largest of all, shared by many
+    // of the notices' words, pairs and n-grams (listed by name on a tie).
+    // Space-Saving counts only ever run high, so at least that.
+    let features = &report["features"];
+    assert_eq!(features["baseline_sampled_messages"], 300, "{features}");
+    assert_eq!(features["current_sampled_messages"], 300, "{features}");
+    let rising = features["rising"].as_array().unwrap();
+    assert_eq!(rising.len(), 20, "{rising:?}");
+    for change in rising {
+        assert!(change["change"].as_f64().unwrap() >= 0.4 - 1e-9, "{change}");
+    }
+    for name in ["body pair \"customs fee\"", "body pair \"can deliver\""] {
+        let rise = rising
+            .iter()
+            .find(|change| change["feature"] == name)
+            .unwrap_or_else(|| panic!("{name} is not rising: {rising:?}"));
+        assert_eq!(rise["baseline_messages"], 0, "{rise}");
+        assert!(rise["current_messages"].as_u64().unwrap() >= 120, "{rise}");
+    }
     assert_eq!(report["activity"]["current"]["feedback"], 300);
 
     // The command on the same database, with the same windows, says the
@@ -270,7 +328,9 @@ fn new_junk_the_model_misses_shows_as_drift_with_an_alarm() {
     assert!(text.status.success(), "{}", stderr(&text));
     let text = String::from_utf8_lossy(&text.stdout);
     assert!(
-        text.contains("(large)") && text.contains("feedback_errors"),
+        text.contains("(large)")
+            && text.contains("feedback_errors")
+            && text.contains("body pair \"customs fee\""),
         "{text}"
     );
     assert!(server.stop(), "clean exit");
@@ -279,8 +339,8 @@ fn new_junk_the_model_misses_shows_as_drift_with_an_alarm() {
 #[test]
 fn a_stationary_stream_shows_no_drift() {
     let dir = tempfile::tempdir().unwrap();
-    let server = TestServer::start_in(dir.path(), &[]);
-    let query = two_halves(&server, &usual_mail(2000, 300));
+    let server = TestServer::start_in(dir.path(), &TALLY_ENV);
+    let query = two_halves(&server, None, &usual_mail(2000, 300));
     let report = report(&server, &query);
     let overall = &report["overall"];
     let psi = overall["scores"]["psi"].as_f64().unwrap();

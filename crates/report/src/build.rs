@@ -1,9 +1,9 @@
 //! Building a [`DriftReport`] from the audit and feedback logs.
 //!
-//! Six reads, run side by side on the store's pool: decision tallies per
+//! Eight reads, run side by side on the store's pool: decision tallies per
 //! UTC hour, channel and verdict (with `p_junk` bin counts) for each
 //! window, the labelled decisions themselves, feedback tallies,
-//! checkpoints and model events. Everything else happens here, in memory,
+//! checkpoints, model events and the feature tallies of both windows. Everything else happens here, in memory,
 //! in one pass over those rows per figure; the figures themselves come from
 //! `chaffgate-metrics`.
 //!
@@ -25,7 +25,8 @@ use chaffgate_metrics::{
     confusion, junk_recall_at_false_junk_rate, log_loss, psi, psi_band, roc_auc,
 };
 use chaffgate_store::{
-    FeedbackKind, FeedbackTally, HOUR_MS, HourTally, Label, LabelledDecision, Store, Verdict,
+    FeatureDrift, FeatureTally, FeedbackKind, FeedbackTally, HOUR_MS, HourTally, Label,
+    LabelledDecision, Store, Verdict, feature_drift,
 };
 
 use crate::error::ReportError;
@@ -49,6 +50,11 @@ const HOURLY_UP_TO_MS: i64 = 2 * DAY_MS;
 /// labels, more would hide a real gain.
 const MATERIAL_GAIN_DENOMINATOR: u64 = 20;
 
+/// Names listed in each of the report's feature lists (rising, falling,
+/// largest contributions): enough to spot a new campaign's words, few
+/// enough to read at a glance. A product choice, no source.
+pub const FEATURE_DRIFT_TOP: usize = 20;
+
 /// Builds the drift report `request` asks for from `store`.
 ///
 /// Errors: [`ReportError::InvalidRequest`] listing every setting out of
@@ -71,7 +77,7 @@ pub async fn build(store: &Store, request: &ReportRequest) -> Result<DriftReport
     // scan of a long baseline uses both cores of a small machine.
     let [b1, b2] = halves(start, split);
     let [c1, c2] = halves(split, end);
-    let (b1, b2, c1, c2, labelled, feedback, checkpoints, events) = tokio::try_join!(
+    let (b1, b2, c1, c2, labelled, feedback, checkpoints, events, tally_b, tally_c) = tokio::try_join!(
         store.hour_tallies(b1.0, b1.1, inner_edges, channel),
         store.hour_tallies(b2.0, b2.1, inner_edges, channel),
         store.hour_tallies(c1.0, c1.1, inner_edges, channel),
@@ -80,6 +86,8 @@ pub async fn build(store: &Store, request: &ReportRequest) -> Result<DriftReport
         store.feedback_tallies(start, split, end, channel),
         store.checkpoints_between(start, end),
         store.model_events_between(start, end),
+        store.feature_tally(channel, start, split),
+        store.feature_tally(channel, split, end),
     )?;
     let baseline_tallies: Vec<HourTally> = b1.into_iter().chain(b2).collect();
     let current_tallies: Vec<HourTally> = c1.into_iter().chain(c2).collect();
@@ -194,8 +202,18 @@ pub async fn build(store: &Store, request: &ReportRequest) -> Result<DriftReport
         channels,
         alarms,
         activity,
-        features: None,
+        features: features(&tally_b, &tally_c),
     })
+}
+
+/// Feature drift between the windows' tallies; `None` when neither window
+/// has one. A tally counts in the window its bucket starts in.
+fn features(baseline: &FeatureTally, current: &FeatureTally) -> Option<FeatureDrift> {
+    let is_empty = |tally: &FeatureTally| tally.sampled_messages == 0 && tally.features.is_empty();
+    if is_empty(baseline) && is_empty(current) {
+        return None;
+    }
+    Some(feature_drift(baseline, current, FEATURE_DRIFT_TOP))
 }
 
 /// `[from, until)` cut in two at the UTC hour nearest below its middle
@@ -852,6 +870,7 @@ mod tests {
     use chaffgate_metrics::PsiBand;
     use chaffgate_store::{
         DecisionId, FeedbackImport, FeedbackKind, FeedbackSeq, NewCheckpoint, NewDecision,
+        PartFeature, TallyPart,
     };
     use tempfile::TempDir;
 
@@ -1248,6 +1267,104 @@ mod tests {
                 .alarms
                 .iter()
                 .all(|a| a.detector == Detector::FeedbackErrors)
+        );
+        store.close().await;
+    }
+
+    /// One run's tally part of one hour.
+    fn tally_part(hour: i64, channel: &str, sampled: u64, names: &[(&str, u64)]) -> TallyPart {
+        TallyPart {
+            bucket_start_ms: T0 + hour * HOUR_MS,
+            channel: channel.to_owned(),
+            run_id: "run-1".to_owned(),
+            sampled_messages: sampled,
+            unlisted_max: 0,
+            updated_at_ms: T0,
+            features: names
+                .iter()
+                .map(|(name, messages)| PartFeature {
+                    feature: (*name).to_owned(),
+                    slot: 7,
+                    messages: *messages,
+                    overcount: 0,
+                    contribution_sum: 0.5 * *messages as f64,
+                })
+                .collect(),
+        }
+    }
+
+    #[tokio::test]
+    async fn feature_drift_by_hand() {
+        let (_dir, store) = small_world().await;
+        let (order, prize, refund) = (
+            "body word \"order\"",
+            "body word \"prize\"",
+            "body word \"refund\"",
+        );
+        store
+            .record_feature_tallies(&[
+                tally_part(0, "mail", 10, &[(order, 6), (prize, 1)]),
+                tally_part(2, "mail", 10, &[(order, 2), (prize, 8)]),
+                tally_part(2, "tickets", 10, &[(refund, 7)]),
+                // The hour starting at `at` is outside both windows.
+                tally_part(3, "mail", 100, &[(prize, 100)]),
+            ])
+            .await
+            .unwrap();
+        let report = build(&store, &request()).await.unwrap();
+        let drift = report.features.expect("tallies exist");
+        assert_eq!(
+            (
+                drift.baseline_sampled_messages,
+                drift.current_sampled_messages
+            ),
+            (10, 20)
+        );
+        // Shares by hand: refund 0/10 -> 7/20 (+0.35), prize 1/10 -> 8/20
+        // (+0.3), order 6/10 -> 2/20 (-0.5).
+        let rising: Vec<(&str, f64)> = drift
+            .rising
+            .iter()
+            .map(|c| (c.feature.as_str(), c.change))
+            .collect();
+        assert_eq!(rising.len(), 2);
+        assert_eq!((rising[0].0, rising[1].0), (refund, prize));
+        assert!(close(rising[0].1, 0.35) && close(rising[1].1, 0.3));
+        assert_eq!(drift.falling.len(), 1);
+        assert_eq!(drift.falling[0].feature, order);
+        assert!(close(drift.falling[0].change, -0.5));
+        // Largest contribution in the current window: prize's 8 x 0.5.
+        assert_eq!(drift.top_contributions[0].feature, prize);
+        assert!(close(drift.top_contributions[0].contribution_sum, 4.0));
+
+        // One channel: mail alone, 10 sampled in each window; prize
+        // 0.1 -> 0.8, order 0.6 -> 0.2, refund not there.
+        let mut mail = request();
+        mail.channel = Some("mail".to_owned());
+        let report = build(&store, &mail).await.unwrap();
+        let drift = report.features.as_ref().unwrap();
+        assert_eq!(drift.current_sampled_messages, 10);
+        assert_eq!(drift.rising.len(), 1);
+        assert!(close(drift.rising[0].change, 0.7));
+        assert!(close(drift.falling[0].change, -0.4));
+        let text = report.to_text();
+        for line in [
+            "sampled messages 10 -> 10",
+            "rising:\n    +70.0 pts   10.0% ->  80.0%  body word \"prize\"",
+            "falling:\n    -40.0 pts   60.0% ->  20.0%  body word \"order\"",
+        ] {
+            assert!(text.contains(line), "{line:?} missing in\n{text}");
+        }
+
+        // A channel with no tally in either window: no feature drift.
+        let mut comments = request();
+        comments.channel = Some("comments".to_owned());
+        let report = build(&store, &comments).await.unwrap();
+        assert_eq!(report.features, None);
+        assert!(
+            report
+                .to_text()
+                .contains("no feature tallies in either window")
         );
         store.close().await;
     }

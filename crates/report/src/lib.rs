@@ -13,7 +13,8 @@
 //! 2. quality from moderators' labels: overturned verdicts, ROC area, log
 //!    loss, Brier score, calibration;
 //! 3. threshold advice for a target false-junk rate;
-//! 4. feature drift: a place kept, filled once feature tallies exist;
+//! 4. feature drift: which feature names rose or fell in share of sampled
+//!    messages, from the store's feature tallies;
 //! 5. Page-Hinkley alarms over overturned verdicts and over mean `p_junk`;
 //! 6. learning activity: feedback per moderator and label, corrections,
 //!    revocations, checkpoints and model events.
@@ -33,13 +34,14 @@ mod report;
 mod settings;
 pub mod time;
 
-pub use build::build;
+pub use build::{FEATURE_DRIFT_TOP, build};
+pub use chaffgate_store::{ContributionRank, FeatureDrift, ShareChange};
 pub use error::ReportError;
 pub use report::{
-    Activity, ActivityWindow, Alarm, CheckpointEntry, Detector, DriftReport, FeatureDrift, Help,
-    ModelEventEntry, ModeratorActivity, OperatingPoint, Overturns, QualityBucket, QualityShift,
-    QualityWindow, ScopeReport, ScoreShift, ScoreWindow, SettingsUsed, Shift, ThresholdAdvice,
-    VerdictBucket, VerdictMix, Window, WindowName, Windows,
+    Activity, ActivityWindow, Alarm, CheckpointEntry, Detector, DriftReport, Help, ModelEventEntry,
+    ModeratorActivity, OperatingPoint, Overturns, QualityBucket, QualityShift, QualityWindow,
+    ScopeReport, ScoreShift, ScoreWindow, SettingsUsed, Shift, ThresholdAdvice, VerdictBucket,
+    VerdictMix, Window, WindowName, Windows,
 };
 pub use settings::{
     DEFAULT_BASELINE, DEFAULT_CURRENT, DetectorSettings, MAX_PSI_BINS, ReportRequest,

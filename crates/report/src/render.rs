@@ -9,6 +9,8 @@ use std::fmt::Write;
 
 use chaffgate_metrics::PsiBand;
 
+use chaffgate_store::ShareChange;
+
 use crate::report::{
     ActivityWindow, DriftReport, OperatingPoint, QualityWindow, ScopeReport, ScoreWindow,
     VerdictMix, Window,
@@ -99,8 +101,7 @@ fn write_report(out: &mut String, report: &DriftReport) -> std::fmt::Result {
     }
     write_alarms(out, report)?;
     write_activity(out, report)?;
-    writeln!(out, "features: {}", report.help.features)?;
-    writeln!(out)?;
+    write_features(out, report)?;
     writeln!(out, "psi bands: {}", report.help.psi_band)?;
     writeln!(out, "{}", report.help.caution)
 }
@@ -454,6 +455,50 @@ fn write_activity(out: &mut String, report: &DriftReport) -> std::fmt::Result {
         let kind = &event.kind;
         let detail = &event.detail;
         writeln!(out, "  {at}  {kind} {detail}")?;
+    }
+    writeln!(out)
+}
+
+fn write_features(out: &mut String, report: &DriftReport) -> std::fmt::Result {
+    writeln!(
+        out,
+        "== feature drift (share of sampled messages, baseline -> current) =="
+    )?;
+    let Some(drift) = &report.features else {
+        writeln!(out, "no feature tallies in either window")?;
+        return writeln!(out);
+    };
+    let (before, after) = (
+        drift.baseline_sampled_messages,
+        drift.current_sampled_messages,
+    );
+    let min = drift.min_messages;
+    writeln!(
+        out,
+        "sampled messages {before} -> {after}; names in at least {min} sampled messages"
+    )?;
+    let list = |out: &mut String, title: &str, changes: &[ShareChange]| {
+        writeln!(out, "{title}:")?;
+        if changes.is_empty() {
+            writeln!(out, "  none")?;
+        }
+        for change in changes {
+            let points = change.change * 100.0;
+            let (from, to) = (
+                pct(Some(change.baseline_share)),
+                pct(Some(change.current_share)),
+            );
+            let name = &change.feature;
+            writeln!(out, "  {points:>+7.1} pts  {from:>6} -> {to:>6}  {name}")?;
+        }
+        Ok(())
+    };
+    list(out, "rising", &drift.rising)?;
+    list(out, "falling", &drift.falling)?;
+    writeln!(out, "largest contributions, current window:")?;
+    for rank in &drift.top_contributions {
+        let (sum, messages, name) = (rank.contribution_sum, rank.messages, &rank.feature);
+        writeln!(out, "  {sum:>+9.3} over {messages:>6} messages  {name}")?;
     }
     writeln!(out)
 }

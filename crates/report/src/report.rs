@@ -9,6 +9,7 @@
 //! The report carries its own reading aid in [`Help`].
 
 use chaffgate_metrics::{Calibration, PsiBand, PsiBin};
+use chaffgate_store::FeatureDrift;
 use serde::Serialize;
 
 use crate::settings::{DetectorSettings, VerdictThresholds};
@@ -38,15 +39,13 @@ pub struct DriftReport {
     pub alarms: Vec<Alarm>,
     /// Moderators' feedback and the model's history in each window.
     pub activity: Activity,
-    /// Drift of single features between the windows. Filled when feature
-    /// tallies exist; always `null` for now.
+    /// Drift of single features between the windows, from the feature
+    /// tallies of the report's channel (or of all channels): the
+    /// [`crate::FEATURE_DRIFT_TOP`] names whose share of sampled messages
+    /// rose and fell most, and the largest contributions in the current
+    /// window. `null` when neither window has a tally.
     pub features: Option<FeatureDrift>,
 }
-
-/// Drift of single features between the windows: a place kept for the
-/// report of persisted feature tallies, which do not exist yet.
-#[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct FeatureDrift {}
 
 /// Which of the two windows.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
@@ -498,7 +497,7 @@ pub struct Help {
     pub alarms: &'static str,
     /// What activity counts.
     pub activity: &'static str,
-    /// Why `features` is empty.
+    /// Where `features` comes from and how to read it.
     pub features: &'static str,
     /// A caution for whoever acts on the report.
     pub caution: &'static str,
@@ -544,7 +543,14 @@ impl Help {
         activity: "Feedback rows by the time they were given, per label, moderator and kind; \
                    revoked rows were un-learned since. Checkpoints and model events show the \
                    model's version history in the windows.",
-        features: "Filled when feature tallies exist; null for now.",
+        features: "Feature tallies count readable feature names in a sample of scored \
+                   messages per bucket (an hour by default; see [tally]). A share is the \
+                   messages with the name over the messages sampled in the window; rising and \
+                   falling list the largest changes of share from baseline to current, among \
+                   names seen in at least min_messages sampled messages of one window. Counts \
+                   are estimates that may be slightly high. top_contributions sums each name's \
+                   push on the margin in the current window. null when neither window has a \
+                   tally.",
         caution: "Automatic filtering can hide a message that mattered. Keep a review band, let \
                   people release what was held, and check overturned verdicts before moving a \
                   threshold.",

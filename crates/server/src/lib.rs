@@ -210,6 +210,8 @@ pub fn app(state: AppState) -> Router {
     router
         .route(pages::review::PATH, get(pages::review::page))
         .route(pages::review::QUEUE_PATH, get(pages::review::queue))
+        .route(pages::reports::PATH, get(pages::reports::page))
+        .route(pages::reports::VIEW_PATH, get(pages::reports::view))
         .fallback(routes::not_found)
         .method_not_allowed_fallback(routes::method_not_allowed)
         .layer(middleware::from_fn_with_state(

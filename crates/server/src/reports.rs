@@ -40,14 +40,28 @@ impl Default for ReportDefaults {
     }
 }
 
-/// The query string of `GET /v1/reports/drift`.
-#[derive(Debug, Deserialize)]
+/// The query string of `GET /v1/reports/drift` (and of the report page).
+#[derive(Debug, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct DriftQuery {
-    baseline: Option<String>,
-    current: Option<String>,
-    channel: Option<String>,
-    at: Option<String>,
+    pub(crate) baseline: Option<String>,
+    pub(crate) current: Option<String>,
+    pub(crate) channel: Option<String>,
+    pub(crate) at: Option<String>,
+}
+
+impl DriftQuery {
+    /// The query with empty values taken as absent, as a form sends a
+    /// field left blank.
+    pub(crate) fn without_empty(self) -> DriftQuery {
+        let keep = |value: Option<String>| value.filter(|text| !text.trim().is_empty());
+        DriftQuery {
+            baseline: keep(self.baseline),
+            current: keep(self.current),
+            channel: keep(self.channel),
+            at: keep(self.at),
+        }
+    }
 }
 
 /// Builds the report the query asks for.
@@ -55,9 +69,18 @@ pub async fn drift(
     State(state): State<AppState>,
     ApiQuery(query): ApiQuery<DriftQuery>,
 ) -> Result<ApiJson<DriftReport>, ApiError> {
-    let request = request_from(&query, &state.settings().reports, now_ms)?;
+    report_for(&state, &query).await.map(ApiJson)
+}
+
+/// The report `query` asks for, with the server's defaults; shared by the
+/// JSON route and the report page.
+pub(crate) async fn report_for(
+    state: &AppState,
+    query: &DriftQuery,
+) -> Result<DriftReport, ApiError> {
+    let request = request_from(query, &state.settings().reports, now_ms)?;
     match chaffgate_report::build(state.store(), &request).await {
-        Ok(report) => Ok(ApiJson(report)),
+        Ok(report) => Ok(report),
         Err(err @ ReportError::InvalidRequest { .. }) => {
             Err(ApiError::InvalidParameter(err.to_string()))
         }
@@ -132,6 +155,21 @@ mod tests {
         assert_eq!(request.at_ms, 1_000);
         assert_eq!(request.baseline, Duration::from_secs(5_400));
         assert_eq!(request.current, Duration::from_secs(3_600));
+    }
+
+    #[test]
+    fn blank_form_fields_count_as_absent() {
+        let query = DriftQuery {
+            baseline: Some(String::new()),
+            current: Some(" ".to_owned()),
+            channel: Some(String::new()),
+            at: Some("5".to_owned()),
+        }
+        .without_empty();
+        let request = request_from(&query, &ReportDefaults::default(), || 0).unwrap();
+        assert_eq!(request.channel, None);
+        assert_eq!(request.at_ms, 5);
+        assert_eq!(request.current, Duration::from_secs(86_400));
     }
 
     #[test]

@@ -41,6 +41,7 @@
 //! other script runs, not even an event-handler attribute that escaped
 //! escaping.
 
+pub mod reports;
 pub mod review;
 
 use axum::http::HeaderValue;
@@ -59,7 +60,7 @@ const SHELL_SCRIPT: &str = include_str!("shell.js");
 
 /// The shells served without a token. [`crate::auth`] lets these through;
 /// their fragments keep needing a role.
-pub const SHELL_PATHS: &[&str] = &[review::PATH];
+pub const SHELL_PATHS: &[&str] = &[review::PATH, reports::PATH];
 
 /// Whether `path` is a page shell, served without a token.
 pub fn is_shell(path: &str) -> bool {
@@ -406,7 +407,11 @@ mod tests {
 
     #[test]
     fn every_colour_pair_meets_wcag_aa_and_is_the_one_styled() {
-        let styles = format!("{SHELL_STYLE}{review}", review = review::STYLE);
+        let styles = format!(
+            "{SHELL_STYLE}{review}{reports}",
+            review = review::STYLE,
+            reports = reports::STYLE
+        );
         for (name, fg, bg) in PALETTE {
             let ratio = contrast(fg, bg);
             assert!(ratio >= 4.5, "{name}: {fg} on {bg} is {ratio:.2}:1");
@@ -418,7 +423,11 @@ mod tests {
 
     #[test]
     fn every_colour_in_the_styles_is_in_the_palette() {
-        let styles = format!("{SHELL_STYLE}{review}", review = review::STYLE);
+        let styles = format!(
+            "{SHELL_STYLE}{review}{reports}",
+            review = review::STYLE,
+            reports = reports::STYLE
+        );
         for (at, _) in styles.match_indices('#') {
             let colour = &styles[at..(at + 7).min(styles.len())];
             if colour.len() == 7 && colour[1..].bytes().all(|b| b.is_ascii_hexdigit()) {
