@@ -52,6 +52,8 @@ SHOP_DOMAIN = "brackenfold.example.com"
 HELP_ADDR = "help@brackenfold.example.com"
 CONTACT_ADDR = "hello@brackenfold.example.com"
 SHOP_URL = "https://shop.brackenfold.example.com"
+FILES_URL = "https://files.brackenfold.example.com"
+ADMIN_URL = "https://admin.brackenfold.example.com"
 
 # (first name, surname, local part, craft or job)
 MEMBERS = [
@@ -150,7 +152,7 @@ NEWSLETTERS = [
     ("Loom Circle", "Loom Circle Weaving Guild", "news@loomcircle.example.org",
      "loomcircle.example.org", 5, 10, 2, 2),
     ("Regional Makers' Fund bulletin", "Harrowmere Arts Office",
-     "funding@arts.harrowmere.example.org", "arts.harrowmere.example.org", 2, 8, 4, 2),
+     "funding@arts.harrowmere.example.org", "arts.harrowmere.example.org", 2, 8, 2, 2),
     ("Swiftcrate service update", CARRIER, "service@swiftcrate.example.net",
      "swiftcrate.example.net", 0, 6, 1, 1),
 ]
@@ -166,8 +168,25 @@ JUNK_DOMAINS = {
     "crypto-giveaway": ["coin-double.example", "token-drop.test", "wallet-bonus.example.net"],
     "counterfeit-goods": ["replica-outlet.test", "brandhouse-deals.example",
                           "factory-direct.example.net"],
-    "grant-scam": ["coop-grant-office.test", "marketplace-trust.example",
-                   "makers-fund-verify.test", "grant-desk.example.net"],
+    "fake-order-notice": ["swiftcrate-parcels.test", "parcel-redelivery.example",
+                          "order-notify.example.net", "photo-drop.test", "pics-share.example",
+                          "imgbox.example.net", "shared-album.test", "photo-link.example.org"],
+}
+# The grant scam's look-alike hosts, each group next to the real host it copies.
+GRANT_HOSTS = {
+    # the Regional Makers' Fund writes from arts.harrowmere.example.org
+    "fund": ["arts-harrowmere.example.org", "harrowmere-arts.example.org",
+             "makersfund-harrowmere.example.org", "arts.harrowmere-council.example.net",
+             "regional-makers-fund.example.org", "rmf-harrowmere.example.com"],
+    # payouts come from tillbridge-pay.example.net
+    "payments": ["tillbridge-payments.example.net", "tillbridge-pay.example.org",
+                 "tillbridgepay.example.com"],
+    # suppliers' own hosts, spelt a little differently
+    "supplier": ["tallowmere-wax.example.com", "tallowmerewax.example.net",
+                 "greyling-clay.example.org", "greylingclay.example.com",
+                 "fellhollow-fibre.example.net", "fellhollowfibre.example.org",
+                 "larchgate-timber.example.org", "larchgatetimber.example.net",
+                 "boxwright.example.com", "box-wright.example.net"],
 }
 
 RESERVED_SUFFIXES = ("example.com", "example.org", "example.net", ".test", ".example")
@@ -201,39 +220,53 @@ CUSTOMER_FAMILIES = [
 # A regional carrier backlog in week 3 brings a wave of "where is my parcel".
 SHIPPING_DELAY_WEEKS = [1.0, 1.0, 3.0, 1.6, 1.0, 1.0, 1.0, 1.0]
 
-# Fine mail from the trade and the co-op itself: (campaign, channel, per working day).
+# Fine mail from the trade, the fund and the co-op itself: (campaign, channel,
+# per working day in each week).
 WORK_FAMILIES = [
-    ("supplier-mail", "mail", 2.6),
-    ("member-note", "mail", 2.4),
-    ("member-note", "tickets", 3.0),
+    ("supplier-mail", "mail", [2.6] * WEEKS),
+    ("supplier-offer", "mail", [0.6] * WEEKS),
+    # The Regional Makers' Fund writes about the co-op's spring round
+    # application all along, a little more while the round is busiest.
+    ("fund-mail", "mail", [0.5, 0.8, 1.0, 1.2, 1.5, 1.5, 1.2, 1.0]),
+    ("member-note", "mail", [2.4] * WEEKS),
+    ("member-note", "tickets", [3.0] * WEEKS),
 ]
 
 # Junk campaigns: (campaign, first week, last week, mails per day, tickets per day),
 # scaled by JUNK_TREND[campaign][week - 1].
 JUNK_CAMPAIGNS = [
-    ("fake-invoice", 1, 8, 3.8, 0.3),
-    ("account-phishing", 1, 8, 3.2, 0.6),
-    ("seo-offer", 1, 8, 2.4, 1.8),
-    ("prize-notice", 1, 6, 2.2, 0.6),
-    ("crypto-giveaway", 3, 8, 2.4, 0.8),
-    ("counterfeit-goods", 1, 8, 2.4, 0.9),
-    ("grant-scam", 5, 8, 4.2, 1.4),
+    ("fake-invoice", 1, 8, 3.0, 0.3),
+    ("account-phishing", 1, 8, 2.6, 0.5),
+    ("seo-offer", 1, 8, 2.0, 1.4),
+    ("prize-notice", 1, 6, 2.0, 0.5),
+    ("crypto-giveaway", 3, 8, 2.0, 0.7),
+    ("counterfeit-goods", 1, 8, 2.0, 0.8),
+    ("fake-order-notice", 1, 8, 1.2, 0.4),
+    ("overpayment-order", 1, 8, 0.5, 0.3),
+    ("grant-scam", 5, 8, 19.0, 3.0),
 ]
 JUNK_TREND = {
     "prize-notice": [1.0, 1.0, 0.9, 0.8, 0.6, 0.4, 0, 0],
     "crypto-giveaway": [0, 0, 0.7, 1.0, 1.1, 1.2, 1.2, 1.3],
-    "grant-scam": [0, 0, 0, 0, 0.7, 0.9, 1.05, 1.2],
+    # A launch in week 5, then the senders slow down as it stops paying.
+    "grant-scam": [0, 0, 0, 0, 1.0, 0.6, 0.45, 0.4],
 }
+# The grant scam's launch week: a blast on Monday, tapering off.
+GRANT_LAUNCH_DAYS = [1.8, 1.4, 1.0, 0.7, 0.6, 1.0, 1.0]
+# Campaigns that send in office hours, like the mail they copy.
+OFFICE_HOURS_CAMPAIGNS = ("grant-scam",)
 # Share of grant-scam keywords that are disguised, by week (the campaign adapts).
-GRANT_DISGUISE = [0, 0, 0, 0, 0.5, 0.65, 0.8, 0.9]
+GRANT_DISGUISE = [0, 0, 0, 0, 0.7, 0.7, 0.75, 0.75]
 
 # Share of mail-channel messages sent as a whole raw mail, by campaign.
 RAW_SHARE = {
     "newsletter": 0.85,
     "service-notice": 0.5,
     "supplier-mail": 0.3,
+    "supplier-offer": 0.6,
+    "fund-mail": 0.4,
     "fake-invoice": 0.35,
-    "grant-scam": 0.35,
+    "grant-scam": 0.3,
     "account-phishing": 0.3,
 }
 RAW_SHARE_OTHER = 0.21
@@ -292,14 +325,17 @@ def schedule(rng):
             for channel, rate in (("mail", per_mail), ("tickets", per_ticket)):
                 for _ in range(poisson(rng, rate * factor)):
                     add(day, weighted_index(rng, CUSTOMER_HOURS), channel, campaign, "fine")
-        for campaign, channel, rate in WORK_FAMILIES:
-            for _ in range(poisson(rng, rate * WORK_WEEKDAY[weekday])):
+        for campaign, channel, rates in WORK_FAMILIES:
+            for _ in range(poisson(rng, rates[week - 1] * WORK_WEEKDAY[weekday])):
                 add(day, weighted_index(rng, WORK_HOURS), channel, campaign, "fine")
         # Payouts on Mondays and Thursdays; a carrier manifest every working day.
         if weekday in (0, 3):
             add(day, 5, "mail", "service-notice", "fine")
         if weekday < 5:
             add(day, 17, "mail", "service-notice", "fine")
+        # The payment provider's routine check of the seller's details, twice.
+        if weekday == 1 and week in (3, 7):
+            add(day, 10, "mail", "service-notice", "fine")
         for name, _, _, _, send_weekday, hour, every, first in NEWSLETTERS:
             if weekday == send_weekday and week >= first and (week - first) % every == 0:
                 add(day, hour, "mail", "newsletter", "fine", minute=rng.randrange(5))
@@ -307,12 +343,23 @@ def schedule(rng):
             if not first <= week <= last:
                 continue
             trend = JUNK_TREND.get(campaign, [1.0] * WEEKS)[week - 1]
+            office = campaign in OFFICE_HOURS_CAMPAIGNS
+            if office:
+                trend *= WORK_WEEKDAY[weekday]
+            if campaign == "grant-scam" and week == 5:
+                trend *= GRANT_LAUNCH_DAYS[weekday]
             for channel, rate in (("mail", per_mail), ("tickets", per_ticket)):
                 count = poisson(rng, rate * trend)
                 if count == 0:
                     continue
-                # Junk arrives in bursts: one to three send windows a day.
-                centres = [rng.randrange(86400) for _ in range(rng.randint(1, 3))]
+                # Junk arrives in bursts: one to three send windows a day, or
+                # one each morning and afternoon for the campaigns that copy
+                # office mail.
+                if office:
+                    centres = [rng.randrange(8 * 3600, 12 * 3600),
+                               rng.randrange(13 * 3600, 17 * 3600)]
+                else:
+                    centres = [rng.randrange(86400) for _ in range(rng.randint(1, 3))]
                 for _ in range(count):
                     centre = rng.choice(centres)
                     offset = int(rng.gauss(0, 1800))
@@ -519,9 +566,10 @@ def help_desk_reply(ctx, customer, ref, topic):
         "order-question": f"thanks for your message. Order {ref} is with us and will go out "
                           f"within two working days. You'll get a tracking link from {CARRIER}.",
         "shipping-delay": f"sorry for the wait. {CARRIER} are behind this week; your parcel "
-                          f"{ctx.tracking()} is at their {rng.choice(TOWNS)} depot.",
+                          f"is at their {rng.choice(TOWNS)} depot: {TRACK_URL}{ctx.tracking()}",
         "return-request": "certainly. Please send it back within 30 days in its packaging and "
-                          "tell us whether you'd like a refund or an exchange.",
+                          "tell us whether you'd like a refund or an exchange. The form is at "
+                          f"{SHOP_URL}/returns",
         "damaged-item": "I'm so sorry it arrived broken. Could you send a photo of the piece "
                         "and the box? Then we'll send a replacement straight away.",
         "product-enquiry": "yes, we can. Each piece is made by hand, so allow two to three "
@@ -559,6 +607,10 @@ def customer_message(ctx, campaign, channel):
     extra = CUSTOMER_EXTRAS.get(campaign, [])
     if extra and rng.random() < 0.35:
         body = body + " " + fill(rng.choice(extra), slots)
+    if campaign in PRICED_FAMILIES and rng.random() < 0.3:
+        body = body + " " + fill(rng.choice(PRICE_LINES), slots)
+    if rng.random() < LINK_SHARE:
+        body = body + " " + pasted_link(rng, campaign, slots)
     typo_rate = rng.choice([0, 0, 0.02, 0.04, 0.08])
     body = add_typos(rng, body, typo_rate)
     short = len(body) < 90
@@ -569,6 +621,8 @@ def customer_message(ctx, campaign, channel):
     text = compose(parts)
     if rng.random() < 0.1:
         text = text.lower()
+    if campaign in HURRY_FAMILIES and rng.random() < HURRY_SHARE:
+        text, subject = hurried(rng, text, subject, slots)
     quoted_topics = ("order-question", "shipping-delay", "return-request", "damaged-item",
                      "product-enquiry")
     if channel == "mail" and campaign in quoted_topics and rng.random() < 0.22:
@@ -590,6 +644,60 @@ def customer_message(ctx, campaign, channel):
     if channel == "tickets":
         draft.meta = {"form": TICKET_FORMS.get(campaign, "general")}
     return draft
+
+
+# Families where customers mention what they paid.
+PRICED_FAMILIES = ("order-question", "shipping-delay", "return-request", "damaged-item",
+                   "address-change", "thanks-note")
+PRICE_LINES = ["It was {price} EUR.", "(I paid {price} EUR for it.)",
+               "The total was {price} EUR plus postage.", "That's the {price} EUR one."]
+
+# Share of customers who paste a link (the listing, the tracking page, the order).
+LINK_SHARE = 0.25
+
+
+# Where customers keep the photos they link to.
+PHOTO_HOSTS = ["photos.example.org", "pics.example.net", "album.example.com"]
+
+
+def pasted_link(rng, campaign, slots):
+    slug = re.sub(r"[^a-z0-9]+", "-", slots["product"].lower()).strip("-")
+    listing = f"{SHOP_URL}/p/{slug}"
+    photos = f"https://{rng.choice(PHOTO_HOSTS)}/a/{rng.randrange(10**5, 10**6)}"
+    if campaign in ("damaged-item", "return-request", "thanks-note") and rng.random() < 0.6:
+        return rng.choice([f"Photos: {photos}", f"I've put some photos here: {photos}",
+                           f"Here it is in its new home: {photos}"
+                           if campaign == "thanks-note" else f"See the photos: {photos}"])
+    if campaign in ("shipping-delay", "order-question", "address-change", "damaged-item"):
+        return rng.choice([f"Tracking: {TRACK_URL}{slots['tracking']}",
+                           f"(order page: {SHOP_URL}/orders/{slots['ref'].lower()})",
+                           f"This is the one: {listing}"])
+    return rng.choice([f"This is the one I mean: {listing}", f"({listing})",
+                       f"Link in case it helps: {listing}"])
+
+
+# Share of customers who write in a hurry: shouting, links, "click here".
+HURRY_SHARE = 0.08
+HURRY_FAMILIES = ("order-question", "shipping-delay", "damaged-item", "address-change")
+
+
+def hurried(rng, text, subject, slots):
+    """A real customer in a hurry: the wording of junk, the matter of an order."""
+    slug = re.sub(r"[^a-z0-9]+", "-", slots["product"].lower()).strip("-")
+    listing = f"{SHOP_URL}/p/{slug}"
+    tracking = f"{TRACK_URL}{slots['tracking']}"
+    order = f"{SHOP_URL}/orders/{slots['ref'].lower()}"
+    plea = rng.choice([
+        f"PLEASE reply asap, I need this sorted TODAY!! This is the one I mean: {listing}",
+        f"Click here to see what I mean: {tracking} - it hasn't moved in DAYS!!!",
+        f"urgent!! link to my order: {order} please check it now, I need it by Friday",
+        f"Sorry to rush you but it's urgent. Here's the listing: {listing} and the "
+        f"tracking: {tracking}",
+        f"Act fast please, it's a gift and time is running out! {order}",
+    ])
+    prefix = rng.choice(["URGENT: ", "URGENT!! ", "Please help!! ", "!!! ",
+                         "Reply today please - "])
+    return before_signature(text, plea), prefix + subject
 
 
 TICKET_FORMS = {
@@ -796,8 +904,9 @@ def supplier_message(ctx):
     attachment = None
     if variant == 0:
         subject = f"Order confirmation {po}"
-        body = (f"Hi {buyer.first},\n\nThanks for your order {po}: {item}. We have it in "
-                f"stock and it will go out on {day}.\n\n{person.name}\n{company}")
+        body = (f"Hi {buyer.first},\n\nThanks for your order {po}: {item}, "
+                f"{rng.randrange(80, 900)}.00 EUR. We have it in stock and it will go out on "
+                f"{day}.\n\n{person.name}\n{company}")
     elif variant == 1:
         subject = f"Delivery {day}"
         body = (f"Hi team,\n\nThe {item} arrives {day} morning. Please make room in the back "
@@ -827,11 +936,132 @@ def supplier_message(ctx):
         when = ctx.earlier(1, 2)
         body = (reply + f"\n\nOn {short_date(when)}, {buyer.name} <{buyer.address}> wrote:\n"
                 + quote(asked))
+    if rng.random() < 0.45:
+        portal = f"https://portal.{address.split('@')[1]}"
+        body = body + "\n\n" + rng.choice([
+            f"Your account: {portal}/account", f"Order history and invoices: {portal}/orders",
+            f"Track deliveries at {TRACK_URL}{ctx.tracking()}"])
+    elif rng.random() < 0.5:
+        body = body + f"\nhttps://www.{address.split('@')[1]}"
     draft = Draft(subject, body, person.address, f"{person.name} ({company})")
     draft.attachment = attachment
     draft.hops = rng.randint(2, 3)
     draft.utc_offset_hours = rng.choice([0, 1])
     draft.to = buyer.address if rng.random() < 0.5 else CONTACT_ADDR
+    return draft
+
+
+def supplier_offer(ctx):
+    """Suppliers' offer mailings the co-op signed up for: sales wording, still fine."""
+    rng = ctx.rng
+    company, _, address, kind = rng.choice(SUPPLIERS)
+    host = address.split("@")[1]
+    item = rng.choice(SUPPLY_ITEMS[kind]).split(",")[0]
+    percent = rng.choice([10, 15, 20, 25, 30])
+    code = f"{kind.upper()}{percent}"
+    link = f"https://shop.{host}/offers"
+    subject = rng.choice([
+        f"Spring sale: {percent}% off {item} until Sunday",
+        f"Last chance: {item} at {percent}% off",
+        "FREE delivery on orders over 150 EUR - this week only",
+        f"New price list + {percent}% off your next order",
+        f"Clearance: limited stock of {item}",
+    ])
+    body = rng.choice([
+        f"Hello makers,\n\nOur spring sale is on! Save {percent}% on {item} and more with "
+        f"code {code} at checkout. Offer ends Sunday at midnight, while stocks last.\n\n"
+        f"Shop now: {link}\n\nThe team at {company}",
+        f"Dear customer,\n\nDon't miss out: FREE delivery on every order over 150 EUR until "
+        f"Friday. Order now and we ship the same day.\n\n{link}\n\nBest wishes,\n{company}",
+        f"LIMITED STOCK - {item}\n\nWe have a last batch at {percent}% off the list price. "
+        f"First come, first served! Click here to order: {link}\n\n{company}",
+        f"Hello,\n\nOur price list for April is out. Order before the 1st and get {percent}% "
+        f"off with code {code}, or reply to this mail and we will book it for you.\n\n{link}"
+        f"\n\n{company}",
+    ])
+    unsubscribe = f"https://shop.{host}/unsubscribe"
+    text = compose([body, f"You get these offers because you have a trade account with us. "
+                          f"Unsubscribe: {unsubscribe}"])
+    draft = Draft(subject, text, f"offers@{host}", company)
+    draft.list_unsubscribe = f"<{unsubscribe}?u=bf{rng.randrange(1000, 9999)}>"
+    draft.html = paragraphs_html(text, heading=company)
+    draft.hops = rng.randint(2, 3)
+    return draft
+
+
+FUND_HOST = "arts.harrowmere.example.org"
+FUND_OFFICERS = ["Agatha Penhallow", "Ruben Ashcombe"]
+
+# Sentences of the spring round's world. The Regional Makers' Fund's own mail
+# is made of them, and the grant scam borrows them.
+FUND_SCENE = [
+    "We hope the spring market went well for you.",
+    "It was lovely to see so many studios at the open day.",
+    "Thank you to everyone who sent in photos of their work this winter.",
+    "This spring the fund is putting small studios and co-operatives first.",
+    "Many of you asked about help with equipment after the cold winter.",
+    "Kiln repairs and new looms were the most common requests last year.",
+    "The panel will go through every application by hand.",
+    "Several co-operatives in Harrowmere have already applied.",
+    "We know how busy the weeks before Easter are for makers.",
+    "It has been a long winter for everyone who works with clay and wool.",
+    "Last year's round helped two co-operatives open a shared workshop.",
+    "Our thanks to the members who came to the information evening.",
+    "The council has topped up the fund for the spring round.",
+    "Local makers are what keeps the Saturday market going.",
+    "We are writing to every registered studio in the district.",
+    "Weavers, potters and woodworkers all qualify this time.",
+    "Prices for clay, wax and wool keep going up, so the round comes at a good time.",
+]
+FUND_NEWS = [
+    "The spring round is open for equipment and training awards of up to 4,000 EUR.",
+    "Applications close on 24 April and the panel meets in May.",
+    "Decisions go out by post in late May.",
+    "A shared kiln or loom counts as equipment.",
+    "A co-operative can apply once for all its members.",
+    "Your application {case} is complete and with the panel.",
+    "We have received your application {case}.",
+    "The information evening is on Thursday at the arts office.",
+    "To check eligibility we need your registration number and last year's accounts.",
+    "Awards are paid by the council's finance office after the decision letter.",
+]
+FUND_ASKS = [
+    "You can follow your application on the council portal: {portal}",
+    "Please upload last year's accounts on the portal by 24 April: {portal}",
+    "Please confirm your place at the information evening: https://" + FUND_HOST + "/events",
+    "The eligibility rules are on our website: https://" + FUND_HOST + "/rules",
+    "Please check that the registration number on the portal is right: {portal}",
+    "",
+]
+FUND_CAUTIONS = [
+    "We never ask for fees, card numbers or bank log-ins by email.",
+    "Applying is free, and there is no fee at any stage.",
+    "If a message asks you to pay to receive an award, it is not from us.",
+    "",
+]
+FUND_GREETINGS = ["Dear applicant,", f"Dear {SHOP},", "Hello,", "Dear makers,"]
+
+
+def fund_mail(ctx):
+    """The Regional Makers' Fund's own mail about the spring round and the co-op's application."""
+    rng = ctx.rng
+    officer = rng.choice(FUND_OFFICERS)
+    case = f"RMF-{rng.randrange(2000, 9999)}"
+    slots = {"case": case, "portal": f"https://{FUND_HOST}/portal/{case.lower()}"}
+    news = [fill(line, slots) for line in rng.sample(FUND_NEWS, k=rng.randint(1, 2))]
+    scene = rng.sample(FUND_SCENE, k=rng.randint(0, 2))
+    text = compose([rng.choice(FUND_GREETINGS), " ".join(scene + news),
+                    fill(rng.choice(FUND_ASKS), slots), rng.choice(FUND_CAUTIONS),
+                    f"Kind regards,\n{officer}\nRegional Makers' Fund, Harrowmere Arts Office"])
+    subject = fill(rng.choice([
+        "Spring round: application {case}", "Your application {case}", "Spring round update",
+        "Information evening", "Regional Makers' Fund - {case}", "Spring round: eligibility",
+    ]), slots)
+    draft = Draft(subject, text, f"{rng.choice(['funding', 'grants'])}@{FUND_HOST}",
+                  rng.choice(["Regional Makers' Fund", "Harrowmere Arts Office", officer]))
+    draft.html = paragraphs_html(text)
+    draft.hops = rng.randint(2, 3)
+    draft.to = rng.choice([CONTACT_ADDR, f"maud@{SHOP_DOMAIN}", f"wren@{SHOP_DOMAIN}"])
     return draft
 
 
@@ -854,6 +1084,8 @@ def member_note(ctx, channel):
             f"by Friday.",
         ]
         text = rng.choice(notes)
+        if rng.random() < 0.3:
+            text += f" {ADMIN_URL}/tickets/{ticket.lower()}"
         if rng.random() < 0.3:
             text += f"\n- {author.first}"
         draft = Draft(f"Internal note on {ticket}", text, author.address, author.name)
@@ -886,8 +1118,23 @@ def member_note(ctx, channel):
          f"Open tickets are tagged in the system.\n\n{author.first}"),
         ("Wool delivery",
          f"The merino is in the back store. Please don't stack the clay on it!\n{author.first}"),
+        ("Regional Makers' Fund",
+         f"The fund's spring round is open. I'll do our application on the council portal "
+         f"this week; it asks for last year's accounts, so could someone send me the PDF? "
+         f"Applying costs nothing.\n\n{author.first}"),
+        ("Re: grant application",
+         f"Sent off our Regional Makers' Fund application for the new kiln. They post the "
+         f"decision in May. Fingers crossed!\n\n{author.first}"),
+        ("Fund paperwork",
+         f"Does anyone have the co-op's registration number to hand? The fund's application "
+         f"form wants it, and the bank details for the award.\n\nThanks, {author.first}"),
     ]
     subject, text = rng.choice(options)
+    if rng.random() < 0.5:
+        folder = rng.choice(["photos", "rota", "kiln-log", "stock", "minutes", "accounts"])
+        text = text + "\n\n" + rng.choice([
+            f"It's all in the shared folder: {FILES_URL}/{folder}",
+            f"(see {FILES_URL}/{folder})", f"Link: {FILES_URL}/{folder}"])
     draft = Draft(subject, text, author.address, author.name)
     draft.to = f"members@{SHOP_DOMAIN}"
     draft.hops = 1
@@ -896,18 +1143,11 @@ def member_note(ctx, channel):
 
 def service_notice(ctx):
     """Payout summaries and carrier pick-up manifests the shop signed up for."""
-    rng = ctx.rng
+    if ctx.now.hour == 10:
+        return details_notice(ctx)
     if ctx.now.hour < 12:
-        amount = f"{rng.randrange(600, 4200)}.{rng.randrange(100):02d}"
-        orders = rng.randrange(25, 140)
-        text = (f"Hello {COOP},\n\nYour payout of {amount} EUR for {orders} orders is on its "
-                f"way to the bank account ending 0417 and should arrive within two working "
-                f"days.\n\nSee the details in your dashboard: "
-                f"https://dashboard.tillbridge-pay.example.net/payouts\n\n{PAYMENTS}")
-        draft = Draft(f"Payout of {amount} EUR sent", text, PAYMENTS_ADDR, PAYMENTS)
-        draft.html = paragraphs_html(text)
-        draft.hops = 3
-        return draft
+        return payout_notice(ctx)
+    rng = ctx.rng
     parcels = rng.randrange(6, 38)
     text = (f"Collection manifest for {SHOP}\nDate: {short_date(ctx.now)}\nParcels collected: "
             f"{parcels}\nDriver: route {rng.randrange(10, 60)}\n\nTrack every parcel at "
@@ -917,18 +1157,57 @@ def service_notice(ctx):
     return draft
 
 
-def newsletter(ctx):
-    """Newsletters someone at the co-op subscribed to."""
+def details_notice(ctx):
+    """The payment provider's routine request to check the seller's details."""
+    rng = ctx.rng
+    checks = rng.sample(["trading name", "address", "the bank account for payouts",
+                         "the contact phone number", "the VAT number"], k=3)
+    text = (f"Hello {COOP},\n\nOnce a year we ask every seller to confirm their business "
+            f"details. Please log in to your dashboard and check your {checks[0]}, {checks[1]} "
+            f"and {checks[2]} by {rng.choice(['30 April', '15 May', 'the end of the month'])}:"
+            f"\n\nhttps://dashboard.tillbridge-pay.example.net/settings\n\nYour payouts carry "
+            f"on as usual in the meantime. We never ask for your password or card number by "
+            f"email.\n\n{PAYMENTS}")
+    draft = Draft("Action needed: confirm your business details", text, PAYMENTS_ADDR,
+                  PAYMENTS)
+    draft.html = paragraphs_html(text)
+    draft.hops = 3
+    return draft
+
+
+def payout_notice(ctx):
+    """The payment provider's note that a payout is on its way."""
+    rng = ctx.rng
+    amount = f"{rng.randrange(600, 4200)}.{rng.randrange(100):02d}"
+    orders = rng.randrange(25, 140)
+    largest = []
+    for _ in range(rng.randint(3, 5)):
+        _, product, price = ctx.product()
+        largest.append(f"{ctx.order_ref(4)}  {product}  {price * rng.randint(1, 4)}.00 EUR")
+    text = (f"Hello {COOP},\n\nYour payout of {amount} EUR for {orders} orders is on its "
+            f"way to the bank account ending 0417 and should arrive within two working "
+            f"days.\n\nLargest orders in this payout:\n" + "\n".join(largest) +
+            f"\n\nSee the details in your dashboard: "
+            f"https://dashboard.tillbridge-pay.example.net/payouts\n\n{PAYMENTS}")
+    draft = Draft(f"Payout of {amount} EUR sent", text, PAYMENTS_ADDR, PAYMENTS)
+    draft.html = paragraphs_html(text)
+    draft.hops = 3
+    return draft
+
+
+def newsletter(ctx, chosen=None):
+    """Newsletters someone at the co-op subscribed to (by default the one due now)."""
     rng = ctx.rng
     weekday, hour = ctx.now.weekday(), ctx.now.hour
-    chosen = NEWSLETTERS[0]
-    for entry in NEWSLETTERS:
-        if entry[4] == weekday and entry[5] == hour:
-            chosen = entry
+    if chosen is None:
+        chosen = NEWSLETTERS[0]
+        for entry in NEWSLETTERS:
+            if entry[4] == weekday and entry[5] == hour:
+                chosen = entry
     name, sender_name, address, list_host, _, _, _, _ = chosen
     issue = ctx.week + rng.randrange(40, 44)
     stories = NEWSLETTER_STORIES[name]
-    picked = rng.sample(stories, k=min(3, len(stories)))
+    picked = rng.sample(stories, k=min(rng.choice([3, 3, 4]), len(stories)))
     text = compose([f"{name}, issue {issue}", *picked,
                     f"You get this because you signed up at https://{list_host}/subscribe. "
                     f"Unsubscribe: https://{list_host}/unsubscribe"])
@@ -948,18 +1227,29 @@ NEWSLETTER_STORIES = {
         "Parking: the east field is closed for drainage work, please use the school car park.",
         "Member spotlight: a glass-blower from Stanmere shows how she builds her own furnace.",
         "Reminder: public liability cover is needed for every stall; ask us if unsure.",
+        "Early-bird offer: book your summer fair stall this week and save 20%. Limited "
+        "pitches, first come first served!",
+        "Win a free double pitch at the summer fair: enter our prize draw by Friday.",
+        "The Regional Makers' Fund's spring round is open: stallholders can apply for "
+        "equipment awards on the council portal.",
     ],
     "Kiln & Glaze Notes": [
         "Glaze of the month: a satin ash glaze that breaks brown over texture. Recipe inside.",
         "Kiln care: vacuum your elements before the spring firing season.",
         "Price note: stoneware bags go up slightly from April.",
+        "Kiln grants: this spring the Regional Makers' Fund covers kilns. Apply on the "
+        "council portal; the fund never charges a fee.",
         "Reader question: why do my glazes crawl? Usually dust or a too-thick application.",
+        "This fortnight only: 15% off all glazes with code GLAZE15 and free delivery over "
+        "100 EUR. Order now while stocks last!",
     ],
     "Loom Circle": [
         "Open studio on the last Sunday of the month: bring a project, share a warp.",
         "Dyeing with onion skins: a beginner's guide to warm yellows.",
         "Guild library: three new books on rag rugs and tablet weaving.",
         "Call for entries: the guild's summer exhibition in Tidewell.",
+        "Bursaries: the guild helps members with Regional Makers' Fund applications for "
+        "looms; ask at the open studio.",
     ],
     "Regional Makers' Fund bulletin": [
         "The Regional Makers' Fund opens its spring round: small grants for equipment and "
@@ -968,12 +1258,23 @@ NEWSLETTER_STORIES = {
         "Workshop: writing a good grant application, free for registered makers, 14 April.",
         "Last year's round funded 23 studios, including two co-operatives.",
         "Reminder: decisions are posted, never sent as payment requests.",
+        "Open studios weekend: the fund pays for signs for any maker who opens their "
+        "workshop to the public on 9 and 10 May.",
+        "Meet the panel: this round's judges are two potters, a furniture maker and a "
+        "weaver from Tidewell.",
+        "Case study: how a Marrowford bookbinder used a small grant to buy a board shear "
+        "and doubled her orders.",
+        "Training bursaries: up to 300 EUR towards a course, paid straight to the course "
+        "provider.",
+        "Dates: the spring round closes on 24 April and decisions go out by post in late May.",
     ],
     "Swiftcrate service update": [
         "Depot update: the Marrowford depot is running a day behind after the storm.",
         "Collections over the Easter weekend: no collections on Friday or Monday.",
         "New: customers can now pick a safe place for their parcel when they track it.",
         "Reminder: mark fragile parcels on the label, not only on the tape.",
+        "Special offer: save 20% on a bundle of 50 labels if you buy it in your account "
+        "before Friday.",
     ],
 }
 
@@ -1035,19 +1336,25 @@ def junk_sender(rng, campaign, names, locals_):
 def junk_message(ctx, campaign, channel):
     rng = ctx.rng
     maker = JUNK_MAKERS[campaign]
-    draft = maker(ctx)
-    draft.hops = rng.choice([1, 2, 4, 5, 6, 7, 8])
-    draft.date_skew_seconds = rng.choice([5, 30, 600, 7200, -3600, 86400 * 3])
-    draft.utc_offset_hours = rng.choice([0, 3, 5, 8, -7, -4])
+    draft = maker(ctx, channel)
+    if campaign in OFFICE_HOURS_CAMPAIGNS:
+        # Sent through ordinary mail services, so the envelope looks ordinary too.
+        draft.hops = rng.randint(2, 4)
+        draft.date_skew_seconds = rng.randint(2, 90)
+        draft.utc_offset_hours = rng.choice([0, 0, 1])
+    else:
+        draft.hops = rng.choice([1, 2, 4, 5, 6, 7, 8])
+        draft.date_skew_seconds = rng.choice([5, 30, 600, 7200, -3600, 86400 * 3])
+        draft.utc_offset_hours = rng.choice([0, 3, 5, 8, -7, -4])
     if rng.random() < 0.04:
         draft.text = add_typos(rng, draft.text, 0.05)
-    if channel == "tickets":
+    if channel == "tickets" and draft.meta is None:
         draft.meta = {"form": rng.choice(["general", "general", "general", "order-help",
                                           "account", "returns"])}
     return draft
 
 
-def fake_invoice(ctx):
+def fake_invoice(ctx, _channel):
     rng = ctx.rng
     name, sender, domain = junk_sender(rng, "fake-invoice",
                                        ["Accounts Department", "Billing Team", "Finance Dept",
@@ -1085,7 +1392,7 @@ def fake_invoice(ctx):
     return draft
 
 
-def account_phishing(ctx):
+def account_phishing(ctx, _channel):
     rng = ctx.rng
     name, sender, domain = junk_sender(rng, "account-phishing",
                                        ["Shop Support", "Account Security", "Mailbox Admin",
@@ -1122,7 +1429,7 @@ def account_phishing(ctx):
     return draft
 
 
-def seo_offer(ctx):
+def seo_offer(ctx, _channel):
     rng = ctx.rng
     name, sender, domain = junk_sender(rng, "seo-offer",
                                        ["Digital Growth Team", "SEO Expert", "Marketing Consultant",
@@ -1152,7 +1459,7 @@ def seo_offer(ctx):
     return draft
 
 
-def prize_notice(ctx):
+def prize_notice(ctx, _channel):
     rng = ctx.rng
     name, sender, domain = junk_sender(rng, "prize-notice",
                                        ["Prize Committee", "Customer Rewards", "Lottery Desk",
@@ -1176,7 +1483,7 @@ def prize_notice(ctx):
     return Draft(subject, body, sender, name)
 
 
-def crypto_giveaway(ctx):
+def crypto_giveaway(ctx, _channel):
     rng = ctx.rng
     name, sender, domain = junk_sender(rng, "crypto-giveaway",
                                        ["Crypto Rewards", "Token Airdrop", "Wallet Bonus",
@@ -1198,7 +1505,7 @@ def crypto_giveaway(ctx):
     return Draft(subject, body, sender, name)
 
 
-def counterfeit_goods(ctx):
+def counterfeit_goods(ctx, _channel):
     rng = ctx.rng
     name, sender, domain = junk_sender(rng, "counterfeit-goods",
                                        ["Factory Outlet", "Luxury Deals", "Brand Warehouse",
@@ -1224,16 +1531,21 @@ HOMOGLYPHS = {"a": "\u0430", "e": "\u0435", "o": "\u043e", "p": "\u0440", "c": "
               "x": "\u0445", "i": "\u0456", "y": "\u0443"}
 DIGITS_FOR = {"o": "0", "i": "1", "e": "3", "a": "4", "s": "5", "l": "1"}
 ZERO_WIDTH = ["\u200b", "\u200c", "\u200d", "\u2060"]
-GRANT_WORDS = {"verify", "verification", "account", "grant", "grants", "marketplace", "payment",
-               "confirm", "claim", "funds", "co-op", "seller", "approved", "fee", "deadline",
-               "co-operative", "release", "funding", "deposit", "verified", "shortlisted",
-               "bank", "details"}
+# The grant scam's giveaway words, the ones it disguises.
+GRANT_WORDS = {"verify", "verification", "account", "accounts", "grant", "grants", "award",
+               "marketplace", "payment", "payout", "confirm", "confirmed", "claim", "funds",
+               "seller", "approved", "fee", "deadline", "release", "deposit", "bank", "details",
+               "eligibility", "processing", "portal", "refunded", "co-op", "co-operative",
+               "bursary", "register", "registration", "scheme", "equipment", "secure",
+               "charge", "handling", "stall", "top-up"}
 
 
-def disguise_word(rng, word, html):
-    """Hides a word from naive matching; `html` allows comments inside it."""
-    methods = ["homoglyph", "spaced", "digits", "zero-width"] + (["comment"] * 2 if html else [])
-    method = rng.choice(methods)
+ALL_TRICKS = ("homoglyph", "spaced", "digits", "zero-width")
+
+
+def disguise_word(rng, word, html, tricks=ALL_TRICKS):
+    """Hides a word from naive matching with one of `tricks`; `html` adds comments inside it."""
+    method = rng.choice(list(tricks) + (["comment"] * len(tricks) if html else []))
     letters = list(word)
     positions = list(range(len(letters)))
     if method == "homoglyph":
@@ -1265,7 +1577,7 @@ def disguise_word(rng, word, html):
 TOKEN_EDGE_RE = re.compile(r"^([^A-Za-z]*)([A-Za-z][A-Za-z-]*[A-Za-z])([^A-Za-z]*)$")
 
 
-def disguise_text(rng, text, share, html=False):
+def disguise_text(rng, text, share, html=False, tricks=ALL_TRICKS):
     """Disguises a share of the grant-scam keywords; URLs and addresses stay intact."""
     if share <= 0:
         return text
@@ -1279,73 +1591,436 @@ def disguise_text(rng, text, share, html=False):
             if not match or match.group(2).lower() not in GRANT_WORDS:
                 continue
             if rng.random() < share:
-                tokens[index] = match.group(1) + disguise_word(rng, match.group(2), html) \
-                    + match.group(3)
+                tokens[index] = match.group(1) + disguise_word(rng, match.group(2), html,
+                                                               tricks) + match.group(3)
         out_lines.append(" ".join(tokens))
     return "\n".join(out_lines)
 
 
-def grant_scam(ctx):
-    """The campaign that starts in week 5: a polite, local-sounding grant offer.
+def fake_order_notice(ctx, channel):
+    """Junk dressed as the shop's everyday order and parcel mail."""
+    rng = ctx.rng
+    variant = weighted_index(rng, [3, 2, 2, 3])
+    tracking = ctx.tracking()
+    hosts = JUNK_DOMAINS["fake-order-notice"]
+    if variant == 0:
+        host = rng.choice(hosts[:2])
+        link = f"https://{host}/r/{tracking.lower()}"
+        subject = rng.choice([f"Parcel {tracking}: delivery attempt failed",
+                              f"Your parcel is waiting at the {rng.choice(TOWNS)} depot",
+                              f"{CARRIER}: we missed you today"])
+        body = (f"Hello,\n\nWe tried to deliver parcel {tracking} today but nobody was in. To "
+                f"book a new delivery, pay the redelivery charge of 1.99 EUR within 48 hours:"
+                f"\n\n{link}\n\nParcels that are not rebooked go back to the sender.\n\n{CARRIER}")
+        name, sender = CARRIER, f"updates@{host}"
+    elif variant == 1:
+        host = rng.choice(hosts[:2])
+        link = f"https://{host}/customs/{tracking.lower()}"
+        subject = rng.choice([f"Parcel {tracking} held: import charges due",
+                              "Your parcel is on hold"])
+        body = (f"Dear customer,\n\nYour parcel {tracking} is held at customs. Import charges "
+                f"of {rng.randrange(2, 9)}.{rng.randrange(100):02d} EUR are due before we can "
+                f"deliver it. Pay here: {link}\n\n{CARRIER} customer service")
+        name, sender = f"{CARRIER} customs", f"customs@{host}"
+    elif variant == 2:
+        host = hosts[2]
+        number = f"{rng.randrange(100000, 999999)}"
+        link = f"https://{host}/cancel/{number}"
+        goods = rng.choice(["a laptop", "a tablet", "a pair of headphones", "a coffee machine"])
+        subject = rng.choice([f"Order confirmation {number}", f"Your order {number} has shipped"])
+        body = (f"Thank you for your order!\n\nOrder: {number}\nItem: {goods}\nTotal: "
+                f"{rng.randrange(190, 990)}.00 EUR\n\nIf you did not place this order, cancel it "
+                f"within 24 hours here: {link}\n\nCustomer service")
+        name, sender = "Order Service", f"orders@{host}"
+    else:
+        # A customer's complaint, word for word, with a link to "photos" that
+        # leads somewhere else.
+        draft = customer_message(ctx, rng.choice(["damaged-item", "return-request"]), channel)
+        link = f"https://{rng.choice(hosts[3:])}/s/{rng.randrange(10**6, 10**7)}"
+        draft.text = before_signature(draft.text, rng.choice([
+            f"I've put the photos here: {link}", f"Photos: {link}",
+            f"The pictures are too big to attach, here's the link: {link}",
+            f"You can see the damage here {link}"]))
+        return draft
+    draft = Draft(subject, body, sender, name)
+    draft.html = paragraphs_html(body)
+    return draft
 
-    It borrows the words of the co-op's own world (studio, makers, spring
-    market, the regional fund) rather than the shouting of older junk, and
-    asks for a "marketplace check" and a small deposit.
+
+def overpayment_order(ctx, channel):
+    """A large order from a "customer" that ends in a refund of an overpayment.
+
+    It reads like a custom or wholesale enquiry, because it is one written
+    the customers' way; the tell is one added paragraph: a shipping agent who
+    collects, payment by cheque or for more than the total, a reason not to
+    talk on the phone.
     """
     rng = ctx.rng
-    name, sender, domain = junk_sender(rng, "grant-scam",
-                                       ["Makers Grant Office", "Co-op Funding Desk",
-                                        "Marketplace Verification", "Spring Makers Grant",
-                                        "Regional Makers Fund"],
-                                       ["grants", "verify", "funding", "office", "support"])
-    officer = rng.choice(["Harriet Vale", "Desmond Orchard", "Lena Brightwell", "Conrad Ellery"])
-    amount = rng.choice(["2,500 EUR", "4,000 EUR", "1,750 EUR", "3,200 EUR"])
-    fee = rng.choice(["49 EUR", "35 EUR", "29 EUR", "25 EUR"])
-    case = f"MG-{rng.randrange(10000, 99999)}"
-    link = f"https://{domain}/verify/{case.lower()}"
-    studio = rng.choice([SHOP, "your studio", "your co-operative", "the Brackenfold studio"])
-    subject = rng.choice([
-        f"Spring Makers Grant: {studio} shortlisted",
-        f"Your co-op grant of {amount} is approved",
-        "Marketplace check for your grant application",
-        f"Co-operative grant {case}: confirm your seller details",
-        "Regional makers' support - next step",
-        f"Re: grant application {case}",
+    draft = customer_message(ctx, rng.choice(["custom-order", "wholesale-enquiry",
+                                              "product-enquiry"]), channel)
+    count = rng.choice([40, 50, 60, 80, 100, 120])
+    tell = rng.choice([
+        "My shipping agent will collect from you, so please add nothing for postage.",
+        f"We will need {count} in all. I will pay by cheque and my agent will pick them up "
+        "when it clears.",
+        "My accountant will send a payment for more than the total; please refund the "
+        "difference to the shipping agent.",
+        "I am travelling and can only be reached by email, so please send the total and I "
+        "will arrange the payment today.",
+        "I am hard of hearing so I cannot call. Just reply with the total including the agent's "
+        "fee and I will pay at once.",
+        f"Make it {count} pieces. Payment will come from my company abroad, a little over the "
+        "total, and you can send the rest to our courier.",
     ])
-    body = rng.choice([
-        f"Dear {SHOP},\n\nFollowing your co-operative's listing with the regional makers' "
-        f"network, {studio} has been shortlisted for the Spring Makers Grant of {amount}. To "
-        f"complete the marketplace check, please confirm your seller details here:\n\n{link}\n\n"
-        f"A refundable deposit of {fee} keeps duplicate applications out. Funds are released "
-        f"within five working days of confirmation.\n\nKind regards,\n{officer}\nGrants "
-        f"officer, {name}",
-        f"Hello,\n\nGood news for small studios this spring: craft co-operatives in your area "
-        f"qualify for a one-off grant of {amount} towards tools, kilns and looms. Please "
-        f"verify your marketplace account before Friday so that we can release the payment. "
-        f"The administration fee is {fee}.\n\n{link}\n\nWith best wishes for the season,\n"
-        f"{officer}",
-        f"Dear makers,\n\nWe tried to send your grant payment ({case}) but the marketplace "
-        f"account on file could not be verified. Please confirm your account and bank details "
-        f"at {link} and settle the {fee} verification fee. Unclaimed grants go to the next "
-        f"studio on the list.\n\n{officer}, {name}",
-        f"Hi {rng.choice([m[0] for m in MEMBERS])},\n\nThanks for your interest in the "
-        f"co-op support scheme. Your application {case} is approved in principle. The last "
-        f"step is a quick marketplace verification and the {fee} processing fee:\n{link}\n\n"
-        f"Looking forward to seeing your work at the spring market!\n{officer}",
-    ])
-    share = GRANT_DISGUISE[ctx.week - 1]
-    subject = disguise_text(rng, subject, share)
-    text = disguise_text(rng, body, share)
-    display = disguise_text(rng, name, share * 0.5) if rng.random() < 0.5 else name
-    draft = Draft(subject, text, sender, display)
-    # The HTML part is disguised on its own, with comments inside words as well.
-    html_body = "<html><body>" + "".join(
-        f"<p>{link_urls(escape(p))}</p>" for p in body.split("\n\n")) + "</body></html>"
-    draft.html = disguise_text(rng, html_body, share, html=True)
-    draft.html_only = rng.random() < 0.45
-    if rng.random() < 0.5:
-        draft.reply_to = f"claims@{rng.choice(JUNK_DOMAINS['grant-scam'])}"
+    draft.text = before_signature(draft.text, tell)
     return draft
+
+
+GRANT_OFFICERS = ["Harriet Vale", "Desmond Orchard", "Lena Brightwell", "Conrad Ellery"]
+
+# Whose mail the grant scam passes itself off as, with weights.
+GRANT_PERSONAS = {
+    "mail": [("thread", 50), ("supplier", 30), ("member", 10), ("fund", 5), ("payments", 5)],
+    "tickets": [("fund", 30), ("thread", 70)],
+}
+# In its first week the campaign copies another correspondent every half
+# day, from Monday morning on: (morning, afternoon) by weekday.
+GRANT_LAUNCH_WAVES = {
+    "mail": [("thread", "supplier"), ("thread", "member"), ("supplier", "thread"),
+             ("member", "thread"), ("payments", "supplier"), ("thread", "supplier"),
+             ("thread", "supplier")],
+    "tickets": [("thread", "thread"), ("thread", "thread"), ("thread", "thread"),
+                ("thread", "thread"), ("thread", "thread"), ("thread", "thread"),
+                ("thread", "thread")],
+}
+
+# The grant scam's one added paragraph is spun from these pools; the rest of
+# each message is a copy of real-looking mail that differs from message to
+# message. The campaign rewords the paragraph as it gets caught: in its first
+# week each half working day brings a new generation (its own words, fee,
+# hosts, reference numbers and disguises), and from week 6 on it mixes them.
+GRANT_GENERATIONS = [
+    {   # an award, eligibility, a processing fee
+        "claims": ["{shop} is on the list for a spring award of {amount}",
+                   "your studio qualifies for an award of {amount}",
+                   "the panel has approved {amount} towards {item}",
+                   "an award of {amount} has been reserved for us"],
+        "asks": ["please confirm your eligibility", "complete the short eligibility check",
+                 "confirm who should receive the award"],
+        "fees": ["A processing fee of {fee} applies.", "(Processing fee: {fee}.)",
+                 "The {fee} processing fee is refunded with the award."],
+        "hosts": ["arts-harrowmere.example.org", "makersfund-harrowmere.example.org"],
+        "paths": ["portal/", "eligibility?ref="],
+        "leads": ["", "Good news: ", "Please note: "],
+        "deadlines": ["by {by}", "before {by} or it lapses"],
+        "case": "RMF-{n}",
+        "tricks": ("homoglyph", "digits"),
+        "senders": ["brackenfold-makers.example.com"],
+    },
+    {   # a relief payment from the council
+        "claims": ["the council's relief payment of {amount} for small studios is due to us",
+                   "small studios in the district get a one-off {amount} relief payment",
+                   "we're owed {amount} under the small-studio relief"],
+        "asks": ["claim it on the relief page", "put in the claim online",
+                 "send the claim with the studio's sort code"],
+        "fees": ["The bank's transfer fee is {fee}.", "A {fee} transfer fee comes off first.",
+                 "There's a {fee} transfer charge."],
+        "hosts": ["harrowmere-relief.example.org", "council-relief.example.net"],
+        "paths": ["relief/", "claims/"],
+        "leads": ["Just seen this: ", "", "Heads up, "],
+        "deadlines": ["before Friday noon", "while the money lasts"],
+        "case": "HR{n}",
+        "tricks": ("spaced", "digits"),
+        "senders": ["brackenfold-team.example.net"],
+    },
+    {   # a bursary, registration
+        "claims": ["the studio has been offered a bursary of {amount}",
+                   "there is a {amount} bursary for {item} with our name on it",
+                   "makers who applied last year can take up a {amount} bursary"],
+        "asks": ["register the studio on the bursary page", "fill in the two-minute "
+                 "registration", "sign the bursary agreement"],
+        "fees": ["Registration is {fee}.", "They charge {fee} to register, annoyingly.",
+                 "A {fee} registration charge applies, card only."],
+        "hosts": ["harrowmere-arts.example.org", "regional-makers-fund.example.org"],
+        "paths": ["bursary/", "register/"],
+        "leads": ["PS ", "Before I forget, ", ""],
+        "deadlines": ["today if you can", "this week"],
+        "case": "B/2026/{n}",
+        "tricks": ("zero-width", "spaced"),
+        "senders": ["brackenfold-coop.example.net"],
+    },
+    {   # a training voucher
+        "claims": ["two of us can have training vouchers worth {amount}",
+                   "the college is handing out {amount} training vouchers to co-ops",
+                   "a {amount} voucher for a glaze or weaving course is ours"],
+        "asks": ["enrol on the voucher page", "pick the course and enrol",
+                 "put our names down"],
+        "fees": ["Enrolment is {fee} each.", "It's {fee} to enrol.",
+                 "Enrolment fee {fee}, taken off the voucher later."],
+        "hosts": ["harrowmere-college.example.org", "makers-vouchers.test"],
+        "paths": ["vouchers/", "enrol/"],
+        "leads": ["Oh, and ", "", "By the way, "],
+        "deadlines": ["before the course fills up", "by Wednesday"],
+        "case": "TV-{n}",
+        "tricks": ("homoglyph", "zero-width"),
+        "senders": ["brackenfold-shop.example.org"],
+    },
+    {   # an equipment scheme, verification
+        "claims": ["the equipment scheme will cover {amount} of {item}",
+                   "we qualify for the equipment scheme, worth {amount}",
+                   "{amount} of equipment money is waiting for {shop}"],
+        "asks": ["verify the receiving account", "verify the co-op's trade account",
+                 "re-enter the bank details they hold"],
+        "fees": ["Verification costs {fee}.", "A {fee} verification charge is taken first.",
+                 "It's {fee} to verify, which comes back with the money."],
+        "hosts": ["rmf-harrowmere.example.com", "arts.harrowmere-council.example.net"],
+        "paths": ["verify/", "scheme/"],
+        "leads": ["Quick one: ", "Also, ", ""],
+        "deadlines": ["within 48 hours", "before the end of the month"],
+        "case": "EQ{n}",
+        "tricks": ("digits", "zero-width"),
+        "senders": ["brackenfoldmakers.example.org"],
+    },
+    {   # an energy rebate for the kiln
+        "claims": ["there's an energy rebate of {amount} for running the kiln",
+                   "kiln studios can get {amount} back on this winter's power",
+                   "our power bill qualifies for a {amount} rebate"],
+        "asks": ["confirm the meter number and the account", "send the meter reading and "
+                 "bank details", "fill in the rebate form"],
+        "fees": ["The admin charge is {fee}.", "Admin fee {fee}.",
+                 "They keep {fee} for admin."],
+        "hosts": ["kiln-rebate.example.com", "energy-rebate.test"],
+        "paths": ["rebate/", "meter/"],
+        "leads": ["", "Worth doing: ", "Saw this today: "],
+        "deadlines": ["before the next bill", "by the 15th"],
+        "case": "ER{n}",
+        "tricks": ("spaced", "homoglyph"),
+        "senders": ["brackenfoldcoop.test"],
+    },
+    {   # a stall grant, a deposit
+        "claims": ["stallholders get {amount} towards pitch and tent this spring",
+                   "the spring market stall grant of {amount} is ours if we want it",
+                   "our pitch qualifies for a stall grant of {amount}"],
+        "asks": ["secure the stall grant", "book the grant with the market office",
+                 "confirm the stall and payment details"],
+        "fees": ["They hold a refundable deposit of {fee}.", "Deposit {fee}, paid back in May.",
+                 "A {fee} deposit secures it."],
+        "hosts": ["craftfair-harrowmere.example.org", "harrowmere-craftfair.example.net"],
+        "paths": ["stall-grant/", "pitch/"],
+        "leads": ["One more thing: ", "", "Reminder: "],
+        "deadlines": ["before the market", "by the 20th"],
+        "case": "SG-{n}",
+        "tricks": ("homoglyph", "spaced"),
+        "senders": ["mail-brackenfold.test"],
+    },
+    {   # a marketing grant for the online shop
+        "claims": ["the online shop qualifies for a {amount} marketing grant",
+                   "there's {amount} of marketing money for craft webshops",
+                   "our webshop was picked for a {amount} promotion grant"],
+        "asks": ["activate the grant", "link the shop to the grant", "switch it on"],
+        "fees": ["Activation is {fee}.", "It costs {fee} to activate.",
+                 "A one-off {fee} activation fee applies."],
+        "hosts": ["webshop-grants.example.net", "craft-promo.example"],
+        "paths": ["activate/", "promo/"],
+        "leads": ["", "Nice one: ", "FYI: "],
+        "deadlines": ["by Sunday", "in the next two days"],
+        "case": "MG{n}",
+        "tricks": ("digits", "homoglyph"),
+        "senders": ["team-brackenfold.example.com"],
+    },
+    {   # a top-up held with a payout
+        "claims": ["a top-up of {amount} is held with the next payout",
+                   "the fund has added {amount} to our payout",
+                   "{amount} is ready to be released to {shop}"],
+        "asks": ["release it by confirming the payout account", "confirm the studio's bank "
+                 "details", "check and confirm the co-op's details"],
+        "fees": ["Release costs {fee}.", "A {fee} handling charge covers the bank check.",
+                 "They take {fee} for the paperwork."],
+        "hosts": ["tillbridge-payments.example.net", "tillbridgepay.example.com"],
+        "paths": ["release/", "payout-check?id="],
+        "leads": ["", "Heads up: ", "FYI "],
+        "deadlines": ["before the next payout", "as soon as possible"],
+        "case": "TP{n}",
+        "tricks": ("homoglyph", "zero-width", "digits"),
+        "senders": ["brackenfold-studio.example.com"],
+    },
+    {   # a heritage craft prize
+        "claims": ["the heritage crafts panel has picked us for a {amount} prize",
+                   "our weaving is up for a heritage prize of {amount}",
+                   "a {amount} heritage craft prize is waiting for the studio"],
+        "asks": ["accept the prize online", "send the acceptance form", "say yes on their site"],
+        "fees": ["Acceptance costs {fee}.", "There's a {fee} acceptance fee.",
+                 "They ask {fee} to cover the certificate."],
+        "hosts": ["heritage-crafts-prize.example.org", "craftprize.test"],
+        "paths": ["accept/", "prize/"],
+        "leads": ["Lovely news: ", "", "Guess what: "],
+        "deadlines": ["before the ceremony", "by Monday"],
+        "case": "HCP{n}",
+        "tricks": ("zero-width", "digits", "spaced"),
+        "senders": ["bfmakers.example.org"],
+    },
+]
+
+
+def grant_generation(ctx):
+    """Which wording the grant scam uses now: a new one every half working day of week 5."""
+    if ctx.week == 5 and ctx.now.weekday() < 5:
+        return GRANT_GENERATIONS[2 * ctx.now.weekday() + int(ctx.now.hour >= 13)]
+    return ctx.rng.choice(GRANT_GENERATIONS)
+
+
+def grant_line(rng, generation, slots, link):
+    """The grant scam's tell: money, an ask at a look-alike host, a fee, a deadline."""
+    lead = rng.choice(generation["leads"])
+    claim = fill(rng.choice(generation["claims"]), slots)
+    ask = rng.choice(generation["asks"])
+    deadline = fill(rng.choice(generation["deadlines"]), slots)
+    fee = fill(rng.choice(generation["fees"]), slots)
+    joint = rng.choice([". To receive it, ", ". ", "; ", " - "])
+    ask = capitalise(ask) if joint == ". " else ask
+    line = (lead + claim if lead else capitalise(claim)) + joint + ask + " " + \
+        deadline + rng.choice([": ", " at ", " here: "]) + link
+    return line + rng.choice([" ", "\n\n"]) + fee
+
+
+def grant_scam(ctx, channel):
+    """The campaign that starts in week 5: copies of mail the co-op already trusts.
+
+    Each message is a real-looking copy of one of the shop's correspondents
+    (the Regional Makers' Fund, a member replying in the members' thread or
+    passing on a customer's mail, the payment provider, a supplier), from a
+    look-alike host or a free-mail account, with one paragraph added: money
+    from the fund, confirm eligibility or account details at a look-alike
+    host, a small fee, a deadline. Its key words are disguised
+    (`disguise_text`).
+    """
+    rng = ctx.rng
+    if ctx.week == 5:
+        persona = GRANT_LAUNCH_WAVES[channel][ctx.now.weekday()][int(ctx.now.hour >= 13)]
+    else:
+        names, weights = zip(*GRANT_PERSONAS[channel])
+        persona = names[weighted_index(rng, weights)]
+    generation = grant_generation(ctx)
+    case = generation["case"].format(n=rng.randrange(2000, 9999))
+    slots = {
+        "shop": SHOP, "case": case,
+        "amount": rng.choice(["1,750 EUR", "2,500 EUR", "3,200 EUR", "4,000 EUR", "EUR 2,000",
+                              "1,200 EUR", "650 EUR", "2.5k"]),
+        "fee": rng.choice(["18 EUR", "25 EUR", "29 EUR", "35 EUR", "19.50 EUR"]),
+        "by": rng.choice(["Friday", "Thursday", "the end of the week", "tomorrow", "Monday"]),
+        "item": rng.choice(["a new kiln", "a second loom", "the packing room", "a lathe",
+                            "training for the members", "the spring market stall",
+                            "studio repairs"]),
+    }
+    path = f"{rng.choice(generation['paths'])}{re.sub('[^a-z0-9]+', '-', case.lower())}"
+    line = grant_line(rng, generation, slots,
+                      f"https://{rng.choice(generation['hosts'])}/{path}")
+    # The host the message comes from, looking like the copied sender's.
+    host = rng.choice(GRANT_HOSTS["payments" if persona == "payments" else "fund"])
+    first, last, local, _ = rng.choice(MEMBERS)
+    if rng.random() < 0.5:
+        member_sender = f"{local}@{rng.choice(generation['senders'])}"
+    else:
+        member_sender = f"{local}.{last.lower()}@{rng.choice(CUSTOMER_DOMAINS)}"
+
+    if persona == "fund":
+        base = fund_mail(ctx)
+        officer = rng.choice(GRANT_OFFICERS + FUND_OFFICERS)
+        text = re.sub(r"\n\n(We never|Applying is free|If a message)[^\n]*", "", base.text)
+        text = text.replace(FUND_HOST, host)
+        text = insert_paragraph(rng, text, line)
+        text = re.sub(r"Kind regards,\n[^\n]+", f"Kind regards,\n{officer}", text)
+        draft = Draft(base.subject, text, f"{base.sender.split('@')[0]}@{host}",
+                      base.sender_name)
+        draft.to = base.to
+    elif persona in ("member", "thread"):
+        # A member's account (or one like it) replying in a thread: a note
+        # among the members, or a customer's mail passed on by the help desk.
+        if persona == "member":
+            earlier = member_note(ctx, "mail")
+            reply = rng.choice(["", "Sounds good.", "Thanks, will do.", "Noted!"])
+        else:
+            earlier = customer_message(ctx, rng.choice(QUOTED_FAMILIES), "mail")
+            reply = rng.choice(["I've answered this one.", "I'll deal with this customer.",
+                                "Replied, see below.", "Sorted, the parcel goes out tomorrow.",
+                                "", "", "Can you check the stock for this?",
+                                "This one's for you I think.", "FYI", "Done.",
+                                "I've sent a replacement.", "Refund issued."])
+        when = ctx.earlier(1, 3)
+        other = rng.choice([m[0] for m in MEMBERS if m[0] != first])
+        text = compose([f"Hi {other}," if rng.random() < 0.5 else "Hi all,", reply, line,
+                        first, f"On {short_date(when)}, {earlier.sender_name} "
+                        f"<{earlier.sender}> wrote:\n" + quote(earlier.text)])
+        subject = earlier.subject if earlier.subject.startswith("Re: ") \
+            else f"Re: {earlier.subject}"
+        draft = Draft(subject, text, member_sender, f"{first} {last}")
+        draft.to = f"members@{SHOP_DOMAIN}" if persona == "member" else HELP_ADDR
+        if channel == "tickets":
+            draft.meta = {"form": "general"}
+    elif persona == "payments":
+        base = details_notice(ctx) if rng.random() < 0.7 else payout_notice(ctx)
+        text = insert_paragraph(rng, base.text.replace("tillbridge-pay.example.net", host),
+                                line)
+        draft = Draft(base.subject, text, f"payouts@{host}", base.sender_name)
+    else:
+        base = supplier_message(ctx)
+        # The look-alike of the copied supplier's own host.
+        name = base.sender.split("@")[1].split(".")[0].replace("-", "")
+        host = rng.choice([h for h in GRANT_HOSTS["supplier"]
+                           if h.split(".")[0].replace("-", "") == name])
+        # A supplier's look-alike sends its readers to its own host.
+        line = re.sub(r"https://[^/]+/", f"https://{host}/", line)
+        text = insert_paragraph(rng, base.text, line)
+        draft = Draft(base.subject, text, f"{base.sender.split('@')[0]}@{host}",
+                      base.sender_name)
+        draft.to = base.to
+        draft.attachment = base.attachment
+
+    share, tricks = GRANT_DISGUISE[ctx.week - 1], generation["tricks"]
+    plain = draft.text
+    draft.text = disguise_text(rng, plain, share, tricks=tricks)
+    draft.subject = disguise_text(rng, draft.subject, share, tricks=tricks)
+    if rng.random() < 0.5:
+        draft.sender_name = disguise_text(rng, draft.sender_name, share * 0.5, tricks=tricks)
+    if channel == "tickets":
+        draft.meta = draft.meta or {"form": rng.choice(["general", "general", "account"])}
+    elif persona in ("fund", "payments"):
+        # The HTML part is disguised on its own, with comments inside words as well.
+        html_body = "<html><body>" + "".join(
+            f"<p>{link_urls(escape(p)).replace(chr(10), '<br>')}</p>"
+            for p in plain.split("\n\n")) + "</body></html>"
+        draft.html = disguise_text(rng, html_body, share, html=True, tricks=tricks)
+    if rng.random() < 0.2:
+        # Replies go to the host the link points at.
+        draft.reply_to = f"{rng.choice(['claims', 'office', 'help'])}@" \
+                         f"{re.search(r'https://([^/]+)/', line).group(1)}"
+    return draft
+
+
+QUOTED_FAMILIES = ["order-question", "shipping-delay", "return-request", "damaged-item",
+                   "product-enquiry", "custom-order", "workshop-booking"]
+
+
+def before_signature(text, paragraph):
+    """Adds `paragraph` to a customer's own words, before the sign-off and any quote."""
+    head, marker, tail = text.partition("\n\nOn ")
+    parts = head.split("\n\n")
+    at = len(parts)
+    # Step back over short closing paragraphs: "Thanks,\nKim", "Sent from my phone".
+    while at > 1 and len(parts) - at < 2 and len(parts[at - 1]) < 40:
+        at -= 1
+    return "\n\n".join(parts[:at] + [paragraph] + parts[at:]) + marker + tail
+
+
+def insert_paragraph(rng, text, paragraph, first=1):
+    """Puts `paragraph` between two of the text's paragraphs, never before `first`."""
+    parts = text.split("\n\n")
+    at = rng.randint(min(first, len(parts)), max(min(first, len(parts)), len(parts) - 1))
+    return "\n\n".join(parts[:at] + [paragraph] + parts[at:])
+
+
+def capitalise(text):
+    return text[:1].upper() + text[1:]
 
 
 JUNK_MAKERS = {
@@ -1355,6 +2030,8 @@ JUNK_MAKERS = {
     "prize-notice": prize_notice,
     "crypto-giveaway": crypto_giveaway,
     "counterfeit-goods": counterfeit_goods,
+    "fake-order-notice": fake_order_notice,
+    "overpayment-order": overpayment_order,
     "grant-scam": grant_scam,
 }
 
@@ -1533,6 +2210,10 @@ def build(seed):
             draft = junk_message(ctx, campaign, channel)
         elif campaign == "supplier-mail":
             draft = supplier_message(ctx)
+        elif campaign == "supplier-offer":
+            draft = supplier_offer(ctx)
+        elif campaign == "fund-mail":
+            draft = fund_mail(ctx)
         elif campaign == "member-note":
             draft = member_note(ctx, channel)
         elif campaign == "service-notice":

@@ -210,6 +210,22 @@ fn demo_corpus_grant_scam_is_new_in_week_5_and_disguised() {
         .collect();
     assert!(grant.len() > 100, "{} grant-scam messages", grant.len());
     assert!(grant.iter().all(|l| l["week"].as_u64() >= Some(5)));
+    // Big enough in its first week to move that week's p_junk distribution,
+    // small enough to leave the week's other mail the larger part. The range
+    // is our own choice for the demo, no source.
+    let week_5 = lines
+        .iter()
+        .filter(|l| l["week"].as_u64() == Some(5))
+        .count();
+    let launch = grant
+        .iter()
+        .filter(|l| l["week"].as_u64() == Some(5))
+        .count();
+    let launch_share = launch as f64 / week_5 as f64;
+    assert!(
+        (0.15..=0.25).contains(&launch_share),
+        "grant scam is {launch_share} of week 5"
+    );
     assert!(grant.iter().all(|l| text(l, "label") == "junk"));
     let texts: Vec<String> = grant.iter().map(|l| visible_text(l)).collect();
     assert!(texts.iter().any(|t| t.chars().any(is_cyrillic)));
