@@ -208,6 +208,7 @@ fn client_mistakes_get_4xx_with_stable_codes() {
         ("/v1/decisions?limit=0", 400, "invalid_parameter"),
         ("/v1/decisions?cursor=garbage", 400, "invalid_parameter"),
         ("/v1/decisions?colour=red", 400, "invalid_parameter"),
+        ("/v1/decisions?since=yesterday", 400, "invalid_parameter"),
         ("/v1/nothing", 404, "not_found"),
         ("/v1/score", 405, "method_not_allowed"),
     ] {
@@ -573,6 +574,19 @@ fn client_time_is_refused_by_default_and_recorded_when_allowed() {
     let (_, row) = server.get(&format!("/v1/decisions/{id}"));
     // 2026-03-02T00:00:00Z, the time the request gave.
     assert_eq!(row["created_at_ms"], 1_772_409_600_000_i64);
+    // The decision list finds it by that time, in RFC 3339 or in ms.
+    let listed = |query: &str| {
+        let (status, page) = server.get(&format!("/v1/decisions?{query}"));
+        assert_eq!(status, 200, "{page}");
+        page["decisions"].as_array().unwrap().len()
+    };
+    assert_eq!(
+        listed("since=2026-03-01T00:00:00Z&until=2026-03-03T00:00:00Z"),
+        1
+    );
+    assert_eq!(listed("since=1772409600000&until=1772409600001"), 1);
+    assert_eq!(listed("since=2026-03-02T00:00:00.001Z"), 0);
+    assert_eq!(listed("until=2026-03-02T01:00:00%2B01:00"), 0);
     // The feedback window runs from when the service saw the message, so
     // feedback on an old message is still accepted.
     let (status, _) = feedback(&server, id, "fine");

@@ -405,10 +405,10 @@ pub async fn decision(
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct DecisionQuery {
-    /// Milliseconds since the Unix epoch, inclusive.
-    since: Option<i64>,
-    /// Milliseconds since the Unix epoch, exclusive.
-    until: Option<i64>,
+    /// RFC 3339 or milliseconds since the Unix epoch, inclusive.
+    since: Option<String>,
+    /// RFC 3339 or milliseconds since the Unix epoch, exclusive.
+    until: Option<String>,
     verdict: Option<String>,
     channel: Option<String>,
     limit: Option<u32>,
@@ -443,9 +443,16 @@ pub async fn decisions(
             "limit={limit}: must be between 1 and {max}"
         )));
     }
+    let time = |name: &str, text: Option<&str>| {
+        text.map(|text| {
+            chaffgate_report::time::parse_time(text)
+                .map_err(|err| ApiError::InvalidParameter(format!("{name}: {err}")))
+        })
+        .transpose()
+    };
     let filter = DecisionFilter {
-        since_ms: query.since,
-        until_ms: query.until,
+        since_ms: time("since", query.since.as_deref())?,
+        until_ms: time("until", query.until.as_deref())?,
         verdict,
         channel: query.channel,
         limit,
