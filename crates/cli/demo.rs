@@ -313,10 +313,7 @@ async fn add_demo_token(config: &Config) -> anyhow::Result<String> {
     let store = Store::open(&database)
         .await
         .with_context(|| format!("opening {}", database.display()))?;
-    let secret: String = rand::random::<[u8; 16]>()
-        .iter()
-        .map(|byte| format!("{byte:02x}"))
-        .collect();
+    let secret = crate::token::new_secret();
     let name = format!("demo-{}", now_ms());
     let added = store
         .add_token(&name, Role::Operate, &token_digest(&secret), now_ms())

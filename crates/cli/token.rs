@@ -6,6 +6,7 @@
 
 use anyhow::{Context, bail};
 use chaffgate_server::auth::token_digest;
+use chaffgate_server::judge::lower_hex;
 use chaffgate_server::state::now_ms;
 use chaffgate_store::{Role, Store};
 
@@ -20,15 +21,17 @@ async fn open_store(config: &Config) -> anyhow::Result<Store> {
         .with_context(|| format!("opening database {}", database.display()))
 }
 
+/// A new token secret: 32 random bytes in lowercase hex.
+pub fn new_secret() -> String {
+    lower_hex(&rand::random::<[u8; 32]>())
+}
+
 pub async fn add(config: &Config, name: &str, role: Role) -> anyhow::Result<()> {
     if name.trim().is_empty() || name.len() > 200 {
         bail!("--name {name:?}: must be 1 to 200 characters");
     }
     let store = open_store(config).await?;
-    let secret: String = rand::random::<[u8; 32]>()
-        .iter()
-        .map(|byte| format!("{byte:02x}"))
-        .collect();
+    let secret = new_secret();
     let result = store
         .add_token(name, role, &token_digest(&secret), now_ms())
         .await;
