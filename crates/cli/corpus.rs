@@ -261,7 +261,7 @@ fn parse_jsonl_line(line: &str, limits: &MailLimits) -> Result<Labelled, String>
 /// milliseconds since the Unix epoch. Fractions finer than a millisecond
 /// are dropped.
 fn parse_rfc3339_ms(text: &str) -> Result<i64, String> {
-    crate::demo::rfc3339_ms(text).map_err(|err| format!("{err:#}"))
+    chaffgate_report::time::parse_rfc3339(text).map_err(str::to_owned)
 }
 
 #[cfg(test)]

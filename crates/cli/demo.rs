@@ -18,6 +18,7 @@ use std::path::{Path, PathBuf};
 use std::time::Duration;
 
 use anyhow::{Context, bail};
+use chaffgate_report::time::{parse_rfc3339, rfc3339};
 use chaffgate_server::auth::token_digest;
 use chaffgate_server::state::now_ms;
 use chaffgate_store::{Role, Store};
@@ -138,7 +139,7 @@ fn parse_line(line: &str) -> anyhow::Result<DemoItem> {
     };
     let id = text(&fields, "id")?;
     let at = text(&fields, "at")?;
-    let at_ms = rfc3339_ms(&at)?;
+    let at_ms = parse_rfc3339(&at).map_err(|why| anyhow::anyhow!("at {at:?}: {why}"))?;
     let week = fields
         .get("week")
         .and_then(Value::as_u64)
@@ -159,24 +160,6 @@ fn parse_line(line: &str) -> anyhow::Result<DemoItem> {
         is_junk,
         message: fields,
     })
-}
-
-/// Milliseconds since the epoch of an RFC 3339 time.
-pub fn rfc3339_ms(text: &str) -> anyhow::Result<i64> {
-    let time = time::OffsetDateTime::parse(text, &time::format_description::well_known::Rfc3339)
-        .with_context(|| format!("{text:?} is not an RFC 3339 time"))?;
-    i64::try_from(time.unix_timestamp_nanos() / 1_000_000).context("time out of range")
-}
-
-/// An RFC 3339 time (UTC, whole seconds) for milliseconds since the epoch.
-pub fn ms_rfc3339(ms: i64) -> String {
-    time::OffsetDateTime::from_unix_timestamp(ms.div_euclid(1000))
-        .ok()
-        .and_then(|time| {
-            time.format(&time::format_description::well_known::Rfc3339)
-                .ok()
-        })
-        .unwrap_or_else(|| format!("{ms} ms"))
 }
 
 pub fn run(base: &Config, args: DemoArgs) -> anyhow::Result<()> {
@@ -706,7 +689,7 @@ impl Summary {
     }
 
     fn to_text(&self) -> String {
-        let (from, to) = (ms_rfc3339(self.from_ms), ms_rfc3339(self.to_ms));
+        let (from, to) = (rfc3339(self.from_ms), rfc3339(self.to_ms));
         let mut out = format!(
             "\nThe demo stream, weeks 3-8, replayed as arriving from {from} to {to}\n\
              (every message, labelled or not, against its true label):\n\n"
@@ -784,18 +767,6 @@ fn print_urls(address: SocketAddr, secret: &str, report_query: Option<&str>) {
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn rfc3339_round_trips_whole_seconds() {
-        // 2026-03-02T00:00:00Z is 1772409600 s after the epoch (from memory,
-        // checked with `date -u -d 2026-03-02 +%s`).
-        assert_eq!(
-            rfc3339_ms("2026-03-02T00:00:00Z").unwrap(),
-            1_772_409_600_000
-        );
-        assert_eq!(ms_rfc3339(1_772_409_600_000), "2026-03-02T00:00:00Z");
-        assert!(rfc3339_ms("2026-03-02").is_err());
-    }
 
     #[test]
     fn corpus_lines_lose_their_bookkeeping_fields() {

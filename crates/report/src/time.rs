@@ -156,10 +156,11 @@ pub fn parse_time(text: &str) -> Result<i64, InputError> {
     Ok(ms)
 }
 
+/// Milliseconds since the Unix epoch of
 /// `YYYY-MM-DDTHH:MM:SS[.fraction](Z|+HH:MM|-HH:MM)`, RFC 3339 section 5.6,
 /// read by the `time` crate. A space between date and time is accepted as
 /// the section's note allows; fractions finer than a millisecond are cut.
-fn parse_rfc3339(text: &str) -> Result<i64, &'static str> {
+pub fn parse_rfc3339(text: &str) -> Result<i64, &'static str> {
     let joined;
     let text = if text.len() > 10 && text.as_bytes()[10] == b' ' {
         joined = format!("{}T{}", &text[..10], &text[11..]);
